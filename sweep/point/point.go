@@ -1,0 +1,56 @@
+// Package point is the record of one measured frequency point, shared by
+// the scheduler, the run store, the analysis, the exports and the web page.
+package point
+
+import "time"
+
+// Flags a point can carry. A flagged point is kept and shown, but the
+// analysis excludes it from fits and figures.
+const (
+	FlagUnderRange = "under-range" // reading below the converter's in-spec fraction
+	FlagOverRange  = "over-range"  // reading above the converter's over-range threshold
+	FlagUnsettled  = "unsettled"   // readings did not converge before the point's time-out
+	FlagClipped    = "clipped"     // the voltmeter reported overload (SCPI 9.9E37)
+	FlagRefined    = "refined"     // added by corner refinement (informational, not excluded)
+)
+
+// Point is one measured frequency point.
+type Point struct {
+	Seq      int     `json:"seq"`   // 0-based order of measurement in the run
+	Index    int     `json:"index"` // index in the plan (refined points get indices past the plan's)
+	FreqHz   float64 `json:"freq_hz"`
+	VinVrms  float64 `json:"vin_vrms"`  // generator setting, or measured by a second channel
+	VoutVrms float64 `json:"vout_vrms"` // DUT output, from the converter reading
+	// GainDB is 20·log10(VoutVrms/VinVrms); stored so that a file is
+	// readable without recomputation.
+	GainDB float64 `json:"gain_db"`
+
+	DCVolts     float64   `json:"dc_v"`          // mean DC output reading, volts
+	RangeIndex  int       `json:"range_index"`   // converter range used
+	Range       string    `json:"range"`         // its name
+	RangeFSVrms float64   `json:"range_fs_vrms"` // its full scale
+	FractionFS  float64   `json:"fraction_fs"`   // reading as a fraction of full scale
+	Readings    int       `json:"readings"`      // readings averaged
+	StdRel      float64   `json:"std_rel"`       // experimental standard deviation of the mean, relative (Type A)
+	ConvAccRel  float64   `json:"conv_acc_rel"`  // converter spec half-width, relative (rectangular)
+	DCAccV      float64   `json:"dc_acc_v"`      // voltmeter DC spec half-width, volts (rectangular)
+	SettleS     float64   `json:"settle_s"`      // physical seconds from setting the frequency to the accepted reading
+	Flags       []string  `json:"flags,omitempty"`
+	Time        time.Time `json:"time"`
+}
+
+// Has reports whether p carries flag f.
+func (p Point) Has(f string) bool {
+	for _, g := range p.Flags {
+		if g == f {
+			return true
+		}
+	}
+	return false
+}
+
+// Excluded reports whether the analysis must leave p out of fits and
+// figures: it is under-range, over-range, clipped or unsettled.
+func (p Point) Excluded() bool {
+	return p.Has(FlagUnderRange) || p.Has(FlagOverRange) || p.Has(FlagUnsettled) || p.Has(FlagClipped)
+}
