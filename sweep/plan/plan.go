@@ -32,6 +32,11 @@ type Plan struct {
 	ReferenceHz float64   `toml:"reference_hz" json:"reference_hz"`
 	Refine      Refine    `toml:"refine" json:"refine"`
 	Normalize   Normalize `toml:"normalize" json:"normalize"`
+
+	// src remembers the file name and the line of every key of the
+	// document the plan was decoded from, so that Validate can name them.
+	// It is nil for a plan built in Go.
+	src *source
 }
 
 // Frequencies says which frequencies to measure.

@@ -1,0 +1,142 @@
+package analysis
+
+import (
+	"fmt"
+	"math"
+	"strings"
+)
+
+// ModelTest documents the rule deciding whether the fitted model's corners
+// are reported.
+//
+// The fit sees each point with a standard deviation s = max(u_A, floor)
+// (u_A the point's Type A uncertainty in dB, floor = Options.NoiseFloorDB,
+// 0.01 dB by default; for binned long responses s/√m). The model with the
+// lowest BIC = n·ln(χ²/n) + k·ln n (χ² = Σ(r/s)², k = number of
+// parameters, the gain included) is tested. It is accepted, and its corners
+// reported, when both hold:
+//
+//  1. the residual is at the noise level: √(χ²/n) ≤ Options.ModelFactor
+//     (2 by default);
+//  2. the residual has no structure: the lag-1 autocorrelation of r/s in
+//     frequency order is at most max(0.5, 3/√n) — skipped when the rms
+//     residual is below the floor, where structure does not matter.
+//
+// Otherwise the corners come from interpolation. The fit needs at least
+// k + 3 points per candidate; cascades of up to four poles per side are
+// tried, the orders guided by the measured slopes (implied order ± 1).
+const ModelTest = "reduced chi <= factor and lag-1 autocorrelation <= max(0.5, 3/sqrt(n))"
+
+// fit runs the model fit with starts seeded from the interpolated corners
+// and slopes, and applies the residual test (see ModelTest).
+func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope) *ModelResult {
+	d := newFitData(a.inc, a.o.NoiseFloorDB, a.o.MaxFitPoints)
+	h := fitHints{lowHz: a.inc[0].FreqHz, highHz: a.inc[len(a.inc)-1].FreqHz}
+	side := func(corner *float64, beyond, end *Slope, falling bool) (orders []int, hint float64, ok bool) {
+		if corner != nil {
+			// Order 0 too: a crossing may be ripple rather than a roll-off.
+			return append([]int{0}, ordersAround(beyond)...), *corner, true
+		}
+		// No corner: look for a roll-off starting toward the sweep's end.
+		if end != nil && ((falling && end.DBPerDecade < -1) || (!falling && end.DBPerDecade > 1)) {
+			return append([]int{0}, ordersAround(end)...), 0, true
+		}
+		return []int{0}, 0, false
+	}
+	var ok bool
+	var hint float64
+	if h.lowOrders, hint, ok = side(ie.LowHz, slopeLow, endLow, false); ok && hint > 0 {
+		h.lowHz = hint
+	}
+	if h.highOrders, hint, ok = side(ie.HighHz, slopeHigh, endHigh, true); ok && hint > 0 {
+		h.highHz = hint
+	}
+	cands := fitModels(d, h)
+	if len(cands) == 0 {
+		return nil
+	}
+	best := cands[0]
+	mr := &ModelResult{Model: best.model, Description: best.model.Describe(), BIC: best.bic, FitPoints: len(d.y)}
+	n := float64(len(d.y))
+	var sr2, ss2, lagNum, lagDen float64
+	var prevZ float64
+	for i := range d.y {
+		r := d.y[i] - best.model.atLog(d.xs[i])
+		z := r / d.s[i]
+		sr2 += r * r
+		ss2 += d.s[i] * d.s[i]
+		lagDen += z * z
+		if i > 0 {
+			lagNum += z * prevZ
+		}
+		prevZ = z
+	}
+	mr.ResidualRMSDB = math.Sqrt(sr2 / n)
+	mr.NoiseDB = math.Sqrt(ss2 / n)
+	mr.ReducedChi = math.Sqrt(best.chi2 / n)
+	if lagDen > 0 {
+		mr.Lag1 = lagNum / lagDen
+	}
+	lagMax := math.Max(0.5, 3/math.Sqrt(n))
+	switch {
+	case mr.ReducedChi > a.o.ModelFactor:
+		mr.Reason = fmt.Sprintf("residual %.3g dB rms is above the noise level: reduced chi %.3g > %g", mr.ResidualRMSDB, mr.ReducedChi, a.o.ModelFactor)
+	case mr.ResidualRMSDB > a.o.NoiseFloorDB && mr.Lag1 > lagMax:
+		mr.Reason = fmt.Sprintf("residual %.3g dB rms shows structure: lag-1 autocorrelation %.2f > %.2f", mr.ResidualRMSDB, mr.Lag1, lagMax)
+	default:
+		mr.Accepted = true
+		mr.Reason = fmt.Sprintf("residual %.3g dB rms at the noise level (%.3g dB): reduced chi %.3g <= %g, lag-1 autocorrelation %.2f", mr.ResidualRMSDB, mr.NoiseDB, mr.ReducedChi, a.o.ModelFactor, mr.Lag1)
+	}
+	for _, c := range cands {
+		var sr float64
+		for i := range d.y {
+			r := d.y[i] - c.model.atLog(d.xs[i])
+			sr += r * r
+		}
+		mr.Candidates = append(mr.Candidates, Candidate{Structure: c.st.String(), BIC: c.bic, ResidualRMSDB: math.Sqrt(sr / n)})
+	}
+	return mr
+}
+
+func (st structure) String() string {
+	if len(st) == 0 {
+		return "flat"
+	}
+	parts := make([]string, len(st))
+	for i, k := range st {
+		parts[i] = string(k)
+	}
+	return strings.Join(parts, "+")
+}
+
+// agreement compares the two estimators' corners.
+func agreement(e Estimators, lowU, highU *float64) Agreement {
+	var ag Agreement
+	if e.Model == nil {
+		ag.Note = "no model fitted"
+		return ag
+	}
+	ag.Comparable = (e.Interpolation.LowHz == nil) == (e.Model.LowHz == nil) && (e.Interpolation.HighHz == nil) == (e.Model.HighHz == nil)
+	ag.WithinU = ag.Comparable
+	cmp := func(i, m, u *float64) *float64 {
+		if i == nil || m == nil {
+			return nil
+		}
+		rel := (*m - *i) / *i
+		if u == nil || math.Abs(*m-*i) > *u {
+			ag.WithinU = false
+		}
+		return &rel
+	}
+	ag.LowRel = cmp(e.Interpolation.LowHz, e.Model.LowHz, lowU)
+	ag.HighRel = cmp(e.Interpolation.HighHz, e.Model.HighHz, highU)
+	switch {
+	case !ag.Comparable:
+		ag.Note = "the estimators disagree on which corners exist in the sweep"
+	case ag.WithinU:
+		ag.Note = "the estimators agree within the expanded uncertainty"
+	default:
+		ag.Note = "the estimators differ by more than the expanded uncertainty"
+	}
+	return ag
+}
