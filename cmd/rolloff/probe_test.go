@@ -1,0 +1,185 @@
+package main
+
+import (
+	"bufio"
+	"bytes"
+	"io"
+	"net"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"github.com/creack/pty"
+)
+
+// probeInstrument answers *IDN? and an error queue holding one entry
+// (SCPI-1999 Vol 2 §21.8) on lines ending in term, and records what it
+// received.
+func probeInstrument(rw io.ReadWriter, term string, mu *sync.Mutex, got *[]string) {
+	r := bufio.NewReader(rw)
+	queue := []string{`-113,"Undefined header"`}
+	for {
+		line, err := r.ReadString('\n')
+		if err != nil {
+			return
+		}
+		mu.Lock()
+		*got = append(*got, line)
+		mu.Unlock()
+		switch strings.TrimRight(line, "\r\n") {
+		case "*IDN?":
+			io.WriteString(rw, "rolloff,SIM-GEN,0001,1.0"+term)
+		case "SYST:ERR?":
+			if len(queue) > 0 {
+				io.WriteString(rw, queue[0]+term)
+				queue = queue[1:]
+			} else {
+				io.WriteString(rw, `0,"No error"`+term)
+			}
+		}
+	}
+}
+
+func runCLI(args ...string) (code int, stdout, stderr string) {
+	var out, errOut bytes.Buffer
+	code = realMain(args, strings.NewReader(""), &out, &errOut)
+	return code, out.String(), errOut.String()
+}
+
+func TestProbeTCP(t *testing.T) {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	var mu sync.Mutex
+	var got []string
+	go func() {
+		c, err := ln.Accept()
+		if err != nil {
+			return
+		}
+		defer c.Close()
+		probeInstrument(c, "\n", &mu, &got)
+	}()
+	addr := "tcp://" + ln.Addr().String()
+	code, out, errOut := runCLI("probe", addr, "--timeout", "2s")
+	if code != 0 {
+		t.Fatalf("exit %d, stderr %q", code, errOut)
+	}
+	// IEEE 488.2 §10.14 fields, one per line, labelled.
+	for _, want := range []string{
+		"address:      " + addr + "\n", "transport:    tcp\n", "manufacturer: rolloff\n", "model:        SIM-GEN\n",
+		"serial:       0001\n", "firmware:     1.0\n", `error:        -113 "Undefined header" (command error)` + "\n",
+		"error queue:  1 entry read, now empty\n",
+	} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q:\n%s", want, out)
+		}
+	}
+	mu.Lock()
+	defer mu.Unlock()
+	if strings.Join(got, "") != "*IDN?\nSYST:ERR?\nSYST:ERR?\n" {
+		t.Errorf("instrument received %q", got)
+	}
+}
+
+func TestProbeDeadAddress(t *testing.T) {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	addr := "tcp://" + ln.Addr().String()
+	ln.Close()
+	code, out, errOut := runCLI("probe", "--timeout", "300ms", addr)
+	if code == 0 || out != "" {
+		t.Fatalf("exit %d, stdout %q; want a failure", code, out)
+	}
+	for _, want := range []string{addr, "tcp transport", "time-out 300ms", "cannot connect"} {
+		if !strings.Contains(errOut, want) {
+			t.Errorf("stderr %q lacks %q", errOut, want)
+		}
+	}
+}
+
+func TestProbeSilentInstrument(t *testing.T) {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	go func() {
+		c, err := ln.Accept()
+		if err == nil {
+			defer c.Close()
+			io.Copy(io.Discard, c)
+		}
+	}()
+	addr := "tcp://" + ln.Addr().String()
+	start := time.Now()
+	code, _, errOut := runCLI("probe", addr, "--timeout=200ms")
+	if code == 0 {
+		t.Fatal("a silent instrument probed successfully")
+	}
+	for _, want := range []string{addr, "tcp transport", "time-out 200ms", "*IDN?", "timeout"} {
+		if !strings.Contains(errOut, want) {
+			t.Errorf("stderr %q lacks %q", errOut, want)
+		}
+	}
+	if d := time.Since(start); d > 5*time.Second {
+		t.Errorf("gave up after %v", d)
+	}
+}
+
+func TestProbeSerialCRLF(t *testing.T) {
+	m, s, err := pty.Open()
+	if err != nil {
+		t.Skipf("no pseudo-terminals: %v", err)
+	}
+	defer m.Close()
+	defer s.Close()
+	var mu sync.Mutex
+	var got []string
+	go probeInstrument(m, "\r\n", &mu, &got)
+	code, out, errOut := runCLI("probe", "serial://"+s.Name()+"?baud=115200", "--write-term", `\r\n`, "--read-term", `\r\n`, "--timeout", "2s")
+	if code != 0 {
+		t.Fatalf("exit %d, stderr %q", code, errOut)
+	}
+	if !strings.Contains(out, "model:        SIM-GEN\n") || !strings.Contains(out, "transport:    serial\n") {
+		t.Errorf("output:\n%s", out)
+	}
+	mu.Lock()
+	defer mu.Unlock()
+	if len(got) == 0 || got[0] != "*IDN?\r\n" {
+		t.Errorf("instrument received %q, want CR LF terminated commands", got)
+	}
+}
+
+func TestProbeUsage(t *testing.T) {
+	for _, tc := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"probe"}, "exactly one ADDRESS"},
+		{[]string{"probe", "tcp://a", "tcp://b"}, "exactly one ADDRESS"},
+		{[]string{"probe", "gpib://7"}, `scheme "gpib"`},
+		{[]string{"probe", "tcp://a", "--write-term", "x"}, `--write-term "x"`},
+		{[]string{"probe", "tcp://a", "--read-term", `\t`}, `--read-term "\\t"`},
+		{[]string{"probe", "tcp://a", "--timeout", "0s"}, "--timeout 0s"},
+		{[]string{"probe", "tcp://a", "--bogus"}, "bogus"},
+	} {
+		code, _, errOut := runCLI(tc.args...)
+		if code != 2 || !strings.Contains(errOut, tc.want) {
+			t.Errorf("rolloff %q: exit %d, stderr %q; want 2 and %q", tc.args, code, errOut, tc.want)
+		}
+	}
+	if code, _, _ := runCLI("probe", "-h"); code != 0 {
+		t.Errorf("probe -h: exit %d", code)
+	}
+	for _, tc := range []struct{ in, want string }{{`\n`, "\n"}, {`\r\n`, "\r\n"}, {`\r`, "\r"}, {"\n", "\n"}} {
+		if got, err := probeTerm("--read-term", tc.in); err != nil || got != tc.want {
+			t.Errorf("probeTerm(%q) = %q, %v", tc.in, got, err)
+		}
+	}
+}
