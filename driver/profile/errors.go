@@ -1,0 +1,249 @@
+package profile
+
+import (
+	"errors"
+	"fmt"
+	"reflect"
+	"regexp"
+	"strings"
+
+	"github.com/pelletier/go-toml/v2"
+
+	"rolloff/driver/scpi"
+)
+
+// FieldError is a problem with one key of a profile or bench file.
+type FieldError struct {
+	File    string // file name as given to the decoder
+	Line    int    // 1-based line of the key, 0 when unknown
+	Key     string // dotted TOML key, e.g. "commands.set_frequency" or "ranges[2].name"
+	Value   string // the bad value as written (may be empty for a missing key)
+	Allowed string // what is allowed
+	Msg     string // what is wrong, when Allowed alone does not say it
+	Err     error  // underlying cause, if any
+}
+
+// Error formats the problem as "file:line: key = value: msg (allowed: ...)".
+func (e *FieldError) Error() string {
+	var b strings.Builder
+	b.WriteString(e.File)
+	if e.Line > 0 {
+		fmt.Fprintf(&b, ":%d", e.Line)
+	}
+	b.WriteString(": ")
+	if e.Key != "" {
+		b.WriteString(e.Key)
+		if e.Value != "" {
+			b.WriteString(" = ")
+			b.WriteString(e.Value)
+		}
+		b.WriteString(": ")
+	}
+	switch {
+	case e.Msg != "":
+		b.WriteString(e.Msg)
+	case e.Err != nil:
+		b.WriteString(e.Err.Error())
+	default:
+		b.WriteString("invalid value")
+	}
+	if e.Msg != "" && e.Err != nil && !e.errInMsg() {
+		b.WriteString(": ")
+		b.WriteString(e.Err.Error())
+	}
+	if e.Allowed != "" {
+		b.WriteString(" (allowed: ")
+		b.WriteString(e.Allowed)
+		b.WriteString(")")
+	}
+	return b.String()
+}
+
+// errInMsg reports whether Msg already says what Err says (template
+// errors are summarised by their reason).
+func (e *FieldError) errInMsg() bool {
+	var te *scpi.TemplateError
+	return errors.As(e.Err, &te) && strings.HasSuffix(e.Msg, te.Reason)
+}
+
+// Unwrap returns the underlying cause.
+func (e *FieldError) Unwrap() error { return e.Err }
+
+// problems collects the validation errors of one file.
+type problems struct {
+	file  string
+	lines keyLines
+	errs  []error
+}
+
+// maxProblems bounds how many problems one file reports.
+const maxProblems = 20
+
+func newProblems(file string, data []byte) *problems {
+	return &problems{file: file, lines: indexKeys(data)}
+}
+
+// add records a problem with key. value is formatted with %v; strings are
+// quoted.
+func (p *problems) add(key string, value any, allowed, msg string) {
+	p.addErr(key, value, allowed, msg, nil)
+}
+
+func (p *problems) addErr(key string, value any, allowed, msg string, err error) {
+	if len(p.errs) >= maxProblems {
+		return
+	}
+	p.errs = append(p.errs, &FieldError{
+		File:    p.file,
+		Line:    p.lines.line(key),
+		Key:     key,
+		Value:   formatValue(value),
+		Allowed: allowed,
+		Msg:     msg,
+		Err:     err,
+	})
+}
+
+func (p *problems) err() error {
+	if len(p.errs) == 0 {
+		return nil
+	}
+	return errors.Join(p.errs...)
+}
+
+func formatValue(v any) string {
+	switch x := v.(type) {
+	case nil:
+		return ""
+	case string:
+		return fmt.Sprintf("%q", x)
+	case float64:
+		return fmt.Sprintf("%g", x)
+	case []float64:
+		parts := make([]string, len(x))
+		for i, f := range x {
+			parts[i] = fmt.Sprintf("%g", f)
+		}
+		return "[" + strings.Join(parts, ", ") + "]"
+	default:
+		return fmt.Sprintf("%v", x)
+	}
+}
+
+// decodeError turns a go-toml decode error into FieldErrors carrying the
+// file, line and key.
+func decodeError(file string, err error, target any) error {
+	var sm *toml.StrictMissingError
+	if errors.As(err, &sm) {
+		errs := make([]error, 0, len(sm.Errors))
+		for i := range sm.Errors {
+			de := &sm.Errors[i]
+			line, _ := de.Position()
+			errs = append(errs, &FieldError{
+				File: file, Line: line, Key: strings.Join(de.Key(), "."),
+				Msg: "unknown key", Allowed: allowedKeys(target, de.Key()),
+			})
+			if len(errs) >= maxProblems {
+				break
+			}
+		}
+		return errors.Join(errs...)
+	}
+	var de *toml.DecodeError
+	if errors.As(err, &de) {
+		line, _ := de.Position()
+		return &FieldError{File: file, Line: line, Key: strings.Join(de.Key(), "."), Msg: plainDecodeMessage(strings.TrimPrefix(de.Error(), "toml: "))}
+	}
+	return &FieldError{File: file, Msg: "cannot decode", Err: err}
+}
+
+// typeMismatch matches go-toml's message for a value of the wrong type.
+var typeMismatch = regexp.MustCompile(`^cannot decode TOML (\w+) into .* of type (\S+)$`)
+
+// plainDecodeMessage restates go-toml's type errors in profile terms,
+// without Go type names.
+func plainDecodeMessage(msg string) string {
+	m := typeMismatch.FindStringSubmatch(msg)
+	if m == nil {
+		return msg
+	}
+	return fmt.Sprintf("a TOML %s where %s is expected", m[1], tomlTypeName(m[2]))
+}
+
+func tomlTypeName(goType string) string {
+	switch {
+	case strings.HasPrefix(goType, "float"), strings.HasPrefix(goType, "*float"):
+		return "a number"
+	case strings.HasPrefix(goType, "int"), strings.HasPrefix(goType, "*int"), strings.HasPrefix(goType, "uint"):
+		return "an integer"
+	case strings.Contains(goType, "string"):
+		if strings.HasPrefix(goType, "[]") {
+			return "a list of strings"
+		}
+		return "a string"
+	case goType == "bool":
+		return "true or false"
+	case strings.HasPrefix(goType, "[]"):
+		return "a list"
+	}
+	return "a table"
+}
+
+// allowedKeys lists the keys of the table that holds key in the
+// structure target decodes into.
+func allowedKeys(target any, key []string) string {
+	t := reflect.TypeOf(target)
+	for i := 0; ; i++ {
+		for t.Kind() == reflect.Pointer || t.Kind() == reflect.Slice || t.Kind() == reflect.Array {
+			t = t.Elem()
+		}
+		if t.Kind() != reflect.Struct {
+			return "only the keys documented in the file format"
+		}
+		if i >= len(key)-1 {
+			break
+		}
+		f, ok := fieldByTag(t, key[i])
+		if !ok {
+			return "only the keys documented in the file format"
+		}
+		t = f.Type
+	}
+	var names []string
+	for i := 0; i < t.NumField(); i++ {
+		if n := tomlName(t.Field(i)); n != "" {
+			names = append(names, n)
+		}
+	}
+	if len(names) == 0 {
+		return "no keys here"
+	}
+	return strings.Join(names, ", ")
+}
+
+func fieldByTag(t reflect.Type, name string) (reflect.StructField, bool) {
+	for i := 0; i < t.NumField(); i++ {
+		if tomlName(t.Field(i)) == name {
+			return t.Field(i), true
+		}
+	}
+	return reflect.StructField{}, false
+}
+
+func tomlName(f reflect.StructField) string {
+	if !f.IsExported() {
+		return ""
+	}
+	tag, ok := f.Tag.Lookup("toml")
+	if !ok {
+		return f.Name
+	}
+	name, _, _ := strings.Cut(tag, ",")
+	if name == "-" {
+		return ""
+	}
+	if name == "" {
+		return f.Name
+	}
+	return name
+}
