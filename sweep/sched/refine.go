@@ -1,0 +1,106 @@
+package sched
+
+import (
+	"context"
+	"math"
+	"sort"
+
+	"rolloff/sweep/plan"
+	"rolloff/sweep/point"
+)
+
+// Corner refinement.
+
+func (s *sweeper) refinedCount() int {
+	n := 0
+	for _, p := range s.pts {
+		if p.Index >= s.nPlan {
+			n++
+		}
+	}
+	return n
+}
+
+// sortedPoints returns the usable points by frequency.
+func (s *sweeper) sortedPoints() []point.Point {
+	var v []point.Point
+	for _, p := range s.pts {
+		if !p.Excluded() && p.VinVrms > 0 && p.VoutVrms > 0 {
+			v = append(v, p)
+		}
+	}
+	sort.SliceStable(v, func(a, b int) bool { return v[a].FreqHz < v[b].FreqHz })
+	return v
+}
+
+// referenceDB returns the gain at the plan's reference frequency,
+// interpolated linearly in log f between the points around it (the
+// nearest point outside the measured span).
+func referenceDB(pts []point.Point, refHz float64) (float64, bool) {
+	if len(pts) == 0 {
+		return 0, false
+	}
+	if refHz <= pts[0].FreqHz {
+		return pts[0].GainDB, true
+	}
+	for i := 1; i < len(pts); i++ {
+		if pts[i].FreqHz >= refHz {
+			a, b := pts[i-1], pts[i]
+			x := math.Log(refHz/a.FreqHz) / math.Log(b.FreqHz/a.FreqHz)
+			return a.GainDB + x*(b.GainDB-a.GainDB), true
+		}
+	}
+	return pts[len(pts)-1].GainDB, true
+}
+
+// refine bisects, in log f, each bracket of consecutive points around a
+// crossing of reference + level until it is narrower than the
+// resolution, the lowest corner first, within the refinement budget.
+func (s *sweeper) refine(ctx context.Context) error {
+	rf := s.plan.Refine
+	if !rf.Enabled {
+		return nil
+	}
+	res := rf.ResolutionRel
+	if res <= 0 {
+		res = plan.DefaultResolution
+	}
+	budget := rf.MaxPoints
+	if budget <= 0 {
+		budget = plan.DefaultRefinePoints
+	}
+	refHz := s.plan.ReferenceHz
+	if refHz <= 0 {
+		refHz = plan.DefaultReferenceHz
+	}
+	for s.refinedCount() < budget && len(s.pts) < plan.MaxPoints {
+		pts := s.sortedPoints()
+		ref, ok := referenceDB(pts, refHz)
+		if !ok {
+			return nil
+		}
+		lvl := ref + rf.LevelDB
+		found := false
+		for i := 1; i < len(pts); i++ {
+			a, b := pts[i-1], pts[i]
+			da, db := a.GainDB-lvl, b.GainDB-lvl
+			if da*db > 0 || da == db || b.FreqHz/a.FreqHz-1 <= res {
+				continue
+			}
+			f := math.Sqrt(a.FreqHz * b.FreqHz)
+			// Predict the gain halfway by interpolation in log f.
+			ga := a.VoutVrms / a.VinVrms
+			gb := b.VoutVrms / b.VinVrms
+			pg := math.Sqrt(ga * gb)
+			if err := s.measure(ctx, s.nPlan+s.refinedCount(), f, true, pg); err != nil {
+				return err
+			}
+			found = true
+			break
+		}
+		if !found {
+			return nil
+		}
+	}
+	return nil
+}
