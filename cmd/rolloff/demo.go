@@ -9,6 +9,7 @@ import (
 
 	"rolloff/configs"
 	"rolloff/driver/bench"
+	"rolloff/sweep/analysis"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/sched"
 	"rolloff/sweep/store"
@@ -128,12 +129,12 @@ func compareCorners(env *cmdEnv, b *bench.Bench, p *plan.Plan, res map[string]an
 	}{{"low", "low_hz", lowA}, {"high", "high_hz", highA}} {
 		got, ok := res[c.key].(float64)
 		if !ok {
-			errs = append(errs, fmt.Errorf("demo: no %s corner measured (analytic %s Hz)", c.name, plan.FormatHz(c.want, 6)))
+			errs = append(errs, fmt.Errorf("demo: no %s corner measured (analytic %s)", c.name, analysis.FormatHz(c.want, 6)))
 			continue
 		}
 		e := got/c.want - 1
-		fmt.Fprintf(env.stdout, "%s corner: measured %s Hz, analytic %s Hz, error %+.3f %%\n",
-			c.name, plan.FormatHz(got, 6), plan.FormatHz(c.want, 6), 100*e)
+		fmt.Fprintf(env.stdout, "%s corner: measured %s, analytic %s, error %+.3f %%\n",
+			c.name, analysis.FormatHz(got, 6), analysis.FormatHz(c.want, 6), 100*e)
 		if math.Abs(e) > demoMaxCornerErr {
 			errs = append(errs, fmt.Errorf("demo: %s corner off by %.3f %% (limit %.1f %%)", c.name, 100*e, 100*demoMaxCornerErr))
 		}

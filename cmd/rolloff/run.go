@@ -19,6 +19,7 @@ import (
 	"github.com/schollz/progressbar/v3"
 
 	"rolloff/driver/bench"
+	"rolloff/sweep/analysis"
 	"rolloff/sweep/event"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/sched"
@@ -185,16 +186,16 @@ func printCorners(w io.Writer, res map[string]any) {
 		v, ok := res[c.key].(float64)
 		if !ok {
 			if bnd, ok := res[c.beyond].(float64); ok {
-				fmt.Fprintf(w, "%s: beyond %s Hz\n", c.name, plan.FormatHz(bnd, 5))
+				fmt.Fprintf(w, "%s: beyond the sweep (past %s)\n", c.name, analysis.FormatHz(bnd, 5))
 			} else {
 				fmt.Fprintf(w, "%s: none\n", c.name)
 			}
 			continue
 		}
 		if u, ok := res[c.ukey].(float64); ok {
-			fmt.Fprintf(w, "%s: %s Hz ± %s Hz\n", c.name, plan.FormatHz(v, 6), plan.FormatHz(u, 2))
+			fmt.Fprintf(w, "%s: %s (k = 2)\n", c.name, analysis.FormatWithU(v, u))
 		} else {
-			fmt.Fprintf(w, "%s: %s Hz\n", c.name, plan.FormatHz(v, 6))
+			fmt.Fprintf(w, "%s: %s\n", c.name, analysis.FormatHz(v, 6))
 		}
 	}
 }
@@ -227,7 +228,7 @@ func (pr *progress) show(ev event.Event, st sched.Status) {
 			pr.bar.ChangeMax(st.Total)
 		}
 		eta := time.Duration(st.ETASec * float64(time.Second)).Round(time.Second)
-		pr.bar.Describe(fmt.Sprintf("%-9s %10s Hz  ETA %s", st.State, plan.FormatHz(st.FreqHz, 4), eta))
+		pr.bar.Describe(fmt.Sprintf("%-9s %12s  ETA %s", st.State, analysis.FormatHz(st.FreqHz, 4), eta))
 		_ = pr.bar.Set(st.Done)
 		if ev.Type == event.TypePrompt || (ev.Type == event.TypeLog && ev.Message != "") {
 			pr.bar.Clear()

@@ -12,6 +12,9 @@ const (
 	FlagUnsettled  = "unsettled"   // readings did not converge before the point's time-out
 	FlagClipped    = "clipped"     // the voltmeter reported overload (SCPI 9.9E37)
 	FlagRefined    = "refined"     // added by corner refinement (informational, not excluded)
+	// FlagBeyondBand marks a point above the converter's frequency limit,
+	// where its reading is outside the specification.
+	FlagBeyondBand = "beyond-converter-band"
 )
 
 // Point is one measured frequency point.
@@ -50,7 +53,8 @@ func (p Point) Has(f string) bool {
 }
 
 // Excluded reports whether the analysis must leave p out of fits and
-// figures: it is under-range, over-range, clipped or unsettled.
+// figures: it is under-range, over-range, clipped, unsettled or beyond the
+// converter's frequency limit.
 func (p Point) Excluded() bool {
-	return p.Has(FlagUnderRange) || p.Has(FlagOverRange) || p.Has(FlagUnsettled) || p.Has(FlagClipped)
+	return p.Has(FlagUnderRange) || p.Has(FlagOverRange) || p.Has(FlagUnsettled) || p.Has(FlagClipped) || p.Has(FlagBeyondBand)
 }

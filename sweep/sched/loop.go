@@ -1160,6 +1160,9 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 		case driver.OverRange:
 			pt.Flags = append(pt.Flags, point.FlagOverRange)
 		}
+		if w := s.inst.Converter.Window(); w.MaxFreqHz > 0 && freqHz > w.MaxFreqHz {
+			pt.Flags = append(pt.Flags, point.FlagBeyondBand)
+		}
 		if as, ok := s.inst.Converter.(driver.AccuracySpec); ok {
 			if rel, ok := as.AccuracyRel(s.rangeIdx, freqHz); ok {
 				pt.ConvAccRel = rel

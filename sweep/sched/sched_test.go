@@ -812,3 +812,33 @@ func TestDwellMatchesModel(t *testing.T) {
 	}
 	t.Logf("settle sum %.3f s, bound %.3f s, x %.3f", spent, bound, spent/bound)
 }
+
+func TestBeyondConverterBandFlagged(t *testing.T) {
+	// A converter specified to 50 kHz: points above it are kept but
+	// flagged and excluded; points at or below it are not.
+	clk := newFakeClock()
+	c := newChain(clk)
+	c.window.MaxFreqHz = 50e3
+	rec := &memRecorder{}
+	inst := instruments(c)
+	inst.Converter = remoteChain{c}
+	if _, err := runOn(t, inst, testPlan(plan.RangeRemote), rec, Opts{Clock: clk}); err != nil {
+		t.Fatal(err)
+	}
+	var beyond int
+	for _, pt := range rec.points {
+		flagged := pt.Has(point.FlagBeyondBand)
+		if flagged != (pt.FreqHz > 50e3) {
+			t.Errorf("%g Hz: beyond-band flag %v, converter limit 50 kHz", pt.FreqHz, flagged)
+		}
+		if flagged {
+			beyond++
+			if !pt.Excluded() {
+				t.Errorf("%g Hz beyond the converter's band is not excluded", pt.FreqHz)
+			}
+		}
+	}
+	if beyond == 0 {
+		t.Fatal("test premise: no point above 50 kHz")
+	}
+}

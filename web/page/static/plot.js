@@ -22,12 +22,12 @@
   }
   function excluded(p) {
     const f = p.flags || [];
-    return f.includes('under-range') || f.includes('over-range') || f.includes('unsettled') || f.includes('clipped');
+    return f.includes('under-range') || f.includes('over-range') || f.includes('unsettled') || f.includes('clipped') || f.includes('beyond-converter-band');
   }
   function markerOf(p) {
     const f = p.flags || [];
     if (f.includes('unsettled') || f.includes('clipped')) return 'cross';
-    if (f.includes('under-range') || f.includes('over-range')) return 'hollow';
+    if (f.includes('under-range') || f.includes('over-range') || f.includes('beyond-converter-band')) return 'hollow';
     if (f.includes('refined')) return 'refined';
     return 'point';
   }
