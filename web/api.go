@@ -333,6 +333,9 @@ func (s *Server) decodePlan(r *http.Request) (*plan.Plan, queue.Source, error) {
 	if err := p.Validate(s.be.Limits()); err != nil {
 		return nil, src, err
 	}
+	if err := s.be.CheckThrough(p); err != nil {
+		return nil, src, err
+	}
 	return p, src, nil
 }
 

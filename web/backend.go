@@ -50,6 +50,8 @@ type backend interface {
 	queue.Backend
 	Info() BenchInfo
 	Limits() driver.GeneratorLimits
+	// CheckThrough refuses a plan whose normalization run cannot be used.
+	CheckThrough(p *plan.Plan) error
 	Estimate(p *plan.Plan) (Estimate, error)
 	Points(ctx context.Context, id string) ([]point.Point, error)
 	// OpenFile opens an export of a run; name is already allowlisted.

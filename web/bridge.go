@@ -132,7 +132,12 @@ func (g *bridge) Start(ctx context.Context, id string, p *plan.Plan, resume bool
 			return nil, err
 		}
 	}
-	opts := sched.Opts{Resume: resume, SubscriberBuffer: 4096}
+	through, err := sched.LoadThrough(g.st, p)
+	if err != nil {
+		g.release(id)
+		return nil, err
+	}
+	opts := sched.Opts{Resume: resume, SubscriberBuffer: 4096, Through: through}
 	if g.b.Sim != nil {
 		opts.RangeKnown, opts.CurrentRange = true, g.b.Sim.ConverterRange()
 	}
@@ -254,6 +259,11 @@ func (g *bridge) Info() BenchInfo {
 		in.Window = &w
 	}
 	return in
+}
+
+func (g *bridge) CheckThrough(p *plan.Plan) error {
+	_, err := sched.LoadThrough(g.st, p)
+	return err
 }
 
 func (g *bridge) Limits() driver.GeneratorLimits {

@@ -71,6 +71,10 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return fmt.Errorf("--out %s: %w", *out, err)
 	}
+	through, err := sched.LoadThrough(st, p)
+	if err != nil {
+		return fmt.Errorf("%s: %w", pos[0], err)
+	}
 	b, err := bench.Open(ctx, cfg, env.log)
 	if err != nil {
 		return fmt.Errorf("--bench %s: %w", *benchPath, err)
@@ -81,7 +85,7 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer run.Close()
-	opts := sched.Opts{Operator: terminalOperator(env)}
+	opts := sched.Opts{Operator: terminalOperator(env), Through: through}
 	if b.Sim != nil {
 		opts.Operator = simOperator(env, b, opts.Operator)
 	}

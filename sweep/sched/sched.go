@@ -118,6 +118,9 @@ type Opts struct {
 	RetryBackoff time.Duration
 	// NoAnalysis skips the analysis and exports at the end.
 	NoAnalysis bool
+	// Through is the normalization run's points (see LoadThrough): the
+	// analysis divides the response by it, interpolated in log f.
+	Through []point.Point
 	// Finish, when set, replaces the analysis and exports at the end: it
 	// receives the run's points and returns the result JSON (or nil).
 	Finish func(ctx context.Context, pts []point.Point) (json []byte, err error)
