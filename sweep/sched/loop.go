@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"rolloff/driver"
+	"rolloff/sweep/analysis"
 	"rolloff/sweep/event"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/point"
@@ -749,7 +750,7 @@ func (s *sweeper) measure(ctx context.Context, idx int, freqHz float64, refined 
 		s.actSum += r.phys() - tStart
 		s.modelSum += s.modelPointS(freqHz)
 		if len(pt.Flags) > 0 && !(len(pt.Flags) == 1 && pt.Has(point.FlagRefined)) {
-			r.logEvent(fmt.Sprintf("point %d at %s flagged %v", pt.Seq, plan.FormatHz(freqHz, 4), pt.Flags))
+			r.logEvent(fmt.Sprintf("point %d at %s flagged %v", pt.Seq, analysis.FormatHz(freqHz, 4), pt.Flags))
 		}
 		s.progress()
 		return nil
@@ -771,7 +772,7 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 		gEst, ok = s.scoutGain, true // from this point's first reading
 	}
 	if ok && attempt == 0 && s.rangeKnown {
-		changed, err := s.guard(ctx, gEst*s.ampVrms, gEst, freqHz, fmt.Sprintf("predicted %.4g Vrms at %s", gEst*s.ampVrms, plan.FormatHz(freqHz, 4)))
+		changed, err := s.guard(ctx, gEst*s.ampVrms, gEst, freqHz, fmt.Sprintf("predicted %.4g Vrms at %s", gEst*s.ampVrms, analysis.FormatHz(freqHz, 4)))
 		if err != nil {
 			return pt, false, err
 		}
@@ -829,7 +830,7 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 	} else {
 		dwell = s.plan.Settle.MinDwellS
 	}
-	if err := r.transition(event.Settling, fmt.Sprintf("%s: dwell %.3g s", plan.FormatHz(freqHz, 4), dwell)); err != nil {
+	if err := r.transition(event.Settling, fmt.Sprintf("%s: dwell %.3g s", analysis.FormatHz(freqHz, 4), dwell)); err != nil {
 		return pt, false, err
 	}
 	tau := s.tau()
@@ -949,7 +950,7 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 				vEst = s.ranges()[s.rangeIdx].FullScaleVrms * s.inst.Converter.Window().OverFraction * 3.2
 			}
 			if s.inst.Converter != nil && s.plan.Ranging.Strategy != plan.RangeFixed {
-				changed, err := s.guard(ctx, vEst, vEst/s.ampVrms, freqHz, fmt.Sprintf("over-range at %s", plan.FormatHz(freqHz, 4)))
+				changed, err := s.guard(ctx, vEst, vEst/s.ampVrms, freqHz, fmt.Sprintf("over-range at %s", analysis.FormatHz(freqHz, 4)))
 				if err != nil {
 					return pt, false, err
 				}
@@ -977,7 +978,7 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 			if y1 := (last.Vrms*last.Vrms - y0*e) / (1 - e); y1 > 0 {
 				vEst := math.Sqrt(y1)
 				s.scoutGain = vEst / s.ampVrms
-				changed, err := s.guard(ctx, vEst, vEst/s.ampVrms, freqHz, fmt.Sprintf("first reading %.4g Vrms at %s", vEst, plan.FormatHz(freqHz, 4)))
+				changed, err := s.guard(ctx, vEst, vEst/s.ampVrms, freqHz, fmt.Sprintf("first reading %.4g Vrms at %s", vEst, analysis.FormatHz(freqHz, 4)))
 				if err != nil {
 					return pt, false, err
 				}
@@ -1059,7 +1060,7 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 			}
 			if probeV > 0 && !holdChecked && suspect {
 				holdChecked = true
-				r.logEvent(fmt.Sprintf("%s: readings unchanged since the probe: converter output hold; reading again after it", plan.FormatHz(freqHz, 4)))
+				r.logEvent(fmt.Sprintf("%s: readings unchanged since the probe: converter output hold; reading again after it", analysis.FormatHz(freqHz, 4)))
 				crit.NotBeforeS = probeTS + s.inst.HoldS + s.reading.TimeS(s.meter())
 				cv = settle.NewConverge(crit)
 				if err := r.sleepUntil(ctx, tStep+crit.NotBeforeS); err != nil {
@@ -1147,7 +1148,7 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 		switch status {
 		case driver.UnderRange:
 			if cv.Converged() && mean > 0 {
-				changed, err := s.guard(ctx, mean, mean/s.ampVrms, freqHz, fmt.Sprintf("under-range at %s", plan.FormatHz(freqHz, 4)))
+				changed, err := s.guard(ctx, mean, mean/s.ampVrms, freqHz, fmt.Sprintf("under-range at %s", analysis.FormatHz(freqHz, 4)))
 				if err != nil {
 					return pt, false, err
 				}
