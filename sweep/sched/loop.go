@@ -771,7 +771,14 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 	if !ok && s.scoutGain > 0 {
 		gEst, ok = s.scoutGain, true // from this point's first reading
 	}
-	if ok && attempt == 0 && s.rangeKnown {
+	// An operator is asked for a more sensitive range only on a measured
+	// reading, never on a prediction alone: a prediction that overshoots
+	// (entering a roll-off) would make them turn the switch twice at one
+	// frequency. A less sensitive range is asked for on the prediction,
+	// so that the converter is never driven over range.
+	downOnPrediction := ok && s.rangeKnown && s.inst.Converter != nil &&
+		s.plan.Ranging.Strategy == plan.RangeOperator && s.pickRange(gEst*s.ampVrms) < s.rangeIdx
+	if ok && attempt == 0 && s.rangeKnown && !downOnPrediction {
 		changed, err := s.guard(ctx, gEst*s.ampVrms, gEst, freqHz, fmt.Sprintf("predicted %.4g Vrms at %s", gEst*s.ampVrms, analysis.FormatHz(freqHz, 4)))
 		if err != nil {
 			return pt, false, err

@@ -203,6 +203,56 @@ func TestSimStrategies(t *testing.T) {
 		}
 		checkGains(t, res.b, res.points, p.Settle.Tolerance, taus(res.b))
 	})
+	t.Run("slow-operator", func(t *testing.T) {
+		// A human takes seconds to turn the switch: the converter's
+		// average decays with the output off meanwhile, and the dwell
+		// after the output comes back on must start from then.
+		cfg := simConfig(t, 100)
+		p := shortPlan(plan.RangeOperator)
+		// 4 points per decade up to 1 MHz, past the 95 kHz corner,
+		// where a prediction from the last points overshoots the roll-off.
+		p.Frequencies.StartHz, p.Frequencies.StopHz, p.Frequencies.PointsPerDecade = 5, 1e6, 4
+		bb, run := newRun(t, cfg, p, t.TempDir())
+		defer bb.Close()
+		defer run.Close()
+		prompts := 0
+		op := func(ctx context.Context, pr event.Prompt) (int, error) {
+			prompts++
+			select {
+			case <-time.After(300 * time.Millisecond):
+			case <-ctx.Done():
+				return 0, ctx.Err()
+			}
+			return pr.RangeIndex, bb.Sim.SelectRange(pr.RangeIndex)
+		}
+		res := sweepRun(t, context.Background(), bb, run, p, sched.Opts{NoAnalysis: true, Operator: op}, nil)
+		if res.err != nil {
+			t.Fatal(res.err)
+		}
+		if prompts < 2 {
+			t.Errorf("%d prompts", prompts)
+		}
+		for _, pt := range res.points {
+			if pt.Excluded() {
+				t.Errorf("%g Hz flagged %v", pt.FreqHz, pt.Flags)
+			}
+		}
+		// An operator is never asked twice at one frequency.
+		seen := map[float64]int{}
+		evs, err := run.Events()
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, e := range evs {
+			if e.Type == event.TypePrompt {
+				seen[e.Prompt.FreqHz]++
+				if seen[e.Prompt.FreqHz] > 1 {
+					t.Errorf("asked again at %g Hz: %s", e.Prompt.FreqHz, e.Prompt.Reason)
+				}
+			}
+		}
+		checkGains(t, res.b, res.points, p.Settle.Tolerance, taus(res.b))
+	})
 	t.Run("fixed", func(t *testing.T) {
 		cfg := simConfig(t, 100)
 		p := shortPlan(plan.RangeFixed)
