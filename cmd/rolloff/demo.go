@@ -66,6 +66,7 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return fmt.Errorf("--out %s: %w", *out, err)
 	}
+	st.SetLogger(env.log)
 	b, err := bench.OpenDemo(ctx, env.log)
 	if err != nil {
 		return err

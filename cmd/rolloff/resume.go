@@ -48,6 +48,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return fmt.Errorf("%s: %w", dir, err)
 	}
+	st.SetLogger(env.log)
 	run, err := st.OpenRun(filepath.Base(dir))
 	if err != nil {
 		return err

@@ -71,6 +71,7 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return fmt.Errorf("--out %s: %w", *out, err)
 	}
+	st.SetLogger(env.log)
 	through, err := sched.LoadThrough(st, p)
 	if err != nil {
 		return fmt.Errorf("%s: %w", pos[0], err)

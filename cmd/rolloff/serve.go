@@ -74,6 +74,7 @@ func runServe(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return fmt.Errorf("--data %s: %w", dir, err)
 	}
+	st.SetLogger(env.log)
 
 	var b *bench.Bench
 	if *benchPath == "demo" {

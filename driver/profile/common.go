@@ -138,7 +138,7 @@ func decodeStrict(file string, data []byte, v any) error {
 	d := toml.NewDecoder(bytes.NewReader(data))
 	d.DisallowUnknownFields()
 	if err := d.Decode(v); err != nil {
-		return decodeError(file, err, v)
+		return decodeErrorIn(file, data, err, v)
 	}
 	return nil
 }
@@ -150,7 +150,7 @@ func kindOf(file string, data []byte) (string, error) {
 	}
 	// Not strict: the rest of the document belongs to the kind's decoder.
 	if err := toml.Unmarshal(data, &k); err != nil {
-		return "", decodeError(file, err, &k)
+		return "", decodeErrorIn(file, data, err, &k)
 	}
 	return k.Kind, nil
 }

@@ -157,6 +157,39 @@ func decodeError(file string, err error, target any) error {
 	return &FieldError{File: file, Msg: "cannot decode", Err: err}
 }
 
+// decodeErrorIn is decodeError for a document whose text is at hand: a
+// value of the wrong type is quoted as written on its line.
+func decodeErrorIn(file string, data []byte, err error, target any) error {
+	out := decodeError(file, err, target)
+	var fe *FieldError
+	if errors.As(out, &fe) && fe.Value == "" && fe.Line > 0 && fe.Key != "" {
+		fe.Value = valueOnLine(data, fe.Line)
+	}
+	return out
+}
+
+// valueOnLine returns the value of the `key = value` pair on a 1-based
+// line of a TOML document, without a trailing comment, cut to a sane
+// length; "" when the line holds no such pair.
+func valueOnLine(data []byte, line int) string {
+	lines := strings.Split(string(data), "\n")
+	if line < 1 || line > len(lines) {
+		return ""
+	}
+	_, v, ok := strings.Cut(lines[line-1], "=")
+	if !ok {
+		return ""
+	}
+	v = strings.TrimSpace(v)
+	if i := strings.Index(v, " #"); i >= 0 && !strings.ContainsAny(v[:i], `"'`) {
+		v = strings.TrimSpace(v[:i])
+	}
+	if len(v) > 60 {
+		v = v[:60] + "…"
+	}
+	return v
+}
+
 // typeMismatch matches go-toml's message for a value of the wrong type.
 var typeMismatch = regexp.MustCompile(`^cannot decode TOML (\w+) into .* of type (\S+)$`)
 

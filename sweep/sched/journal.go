@@ -21,6 +21,7 @@ type journal struct {
 	queue   []journalItem
 	wake    chan struct{}
 	err     error // the first failed point write
+	evErr   error // the first failed write of a state, prompt or result event
 	stopped bool
 	done    chan struct{}
 }
@@ -58,6 +59,14 @@ func (j *journal) Err() error {
 	j.mu.Lock()
 	defer j.mu.Unlock()
 	return j.err
+}
+
+// EventErr returns the first failed write of a state, prompt or result
+// event: the run's record on disk does not say what happened.
+func (j *journal) EventErr() error {
+	j.mu.Lock()
+	defer j.mu.Unlock()
+	return j.evErr
 }
 
 // flush waits until everything queued so far is written and returns the
@@ -129,6 +138,13 @@ func (j *journal) writeEvent(ev event.Event) {
 	r := j.r
 	if err := r.rec.AppendEvent(ev); err != nil {
 		r.log.Error().Err(err).Str("type", string(ev.Type)).Msg("cannot store event")
+		if ev.Type == event.TypeState || ev.Type == event.TypePrompt || ev.Type == event.TypeResult {
+			j.mu.Lock()
+			if j.evErr == nil {
+				j.evErr = fmt.Errorf("sched: store %s event: %w", ev.Type, err)
+			}
+			j.mu.Unlock()
+		}
 	}
 	r.mu.Lock()
 	r.broadcastLocked(ev)

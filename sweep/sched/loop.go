@@ -32,6 +32,8 @@ const (
 	maxAttempts = 8
 	// haltTimeout bounds the generator's Halt during shutdown.
 	haltTimeout = 3 * time.Second
+	// haltRetryFor bounds the retries of a failed halt.
+	haltRetryFor = 10 * time.Minute
 )
 
 // What a range change does to the converter's averaged state.
@@ -128,6 +130,11 @@ func (r *Run) main(ctx context.Context) {
 		}
 	}
 	r.j.stop()
+	if jerr := r.j.EventErr(); jerr != nil && err == nil {
+		// The run's end could not be stored: the store will find it
+		// unfinished, so it is not reported done.
+		err = jerr
+	}
 	r.mu.Lock()
 	r.err = err
 	r.closed = true
@@ -140,20 +147,51 @@ func (r *Run) main(ctx context.Context) {
 	close(r.done)
 }
 
-// halt puts the generator in its inert state with its own time-out.
+// halt puts the generator in its inert state with its own time-out. When
+// that fails (the generator is unreachable), a goroutine keeps trying with
+// backoff until the output is off, the generator is closed, or
+// haltRetryFor has passed: a generator that comes back after an outage
+// must not go on driving the DUT.
 func (r *Run) halt() {
+	err := r.haltOnce()
+	if err == nil {
+		return
+	}
+	r.log.Error().Err(err).Msg("generator halt")
+	r.emit(event.Event{Type: event.TypeLog, Message: "generator halt failed: " + err.Error() + "; retrying until the output is off"})
+	go r.haltRetry()
+}
+
+// haltOnce tries Halt once, bounded by haltTimeout.
+func (r *Run) haltOnce() error {
 	done := make(chan error, 1)
 	go func() { done <- r.inst.Generator.Halt() }()
 	select {
 	case err := <-done:
-		if err != nil {
-			r.log.Error().Err(err).Msg("generator halt")
-			r.emit(event.Event{Type: event.TypeLog, Message: "generator halt failed: " + err.Error()})
-		}
+		return err
 	case <-time.After(haltTimeout):
-		r.log.Error().Msg("generator halt timed out")
-		r.emit(event.Event{Type: event.TypeLog, Message: "generator halt timed out"})
+		return fmt.Errorf("sched: generator halt timed out after %v: %w", haltTimeout, driver.ErrTimeout)
 	}
+}
+
+// haltRetry retries a failed halt with backoff (wall time).
+func (r *Run) haltRetry() {
+	deadline := time.Now().Add(haltRetryFor)
+	wait := 250 * time.Millisecond
+	for tries := 2; time.Now().Before(deadline); tries++ {
+		time.Sleep(wait)
+		err := r.haltOnce()
+		if err == nil {
+			r.log.Warn().Int("tries", tries).Msg("generator output off after a failed halt")
+			return
+		}
+		if errors.Is(err, driver.ErrClosed) {
+			r.log.Warn().Err(err).Msg("generator closed before its output could be switched off")
+			return
+		}
+		wait = min(2*wait, 2*time.Second)
+	}
+	r.log.Error().Dur("for", haltRetryFor).Msg("gave up switching the generator output off: check it by hand")
 }
 
 // phys returns the physical seconds since the run started.

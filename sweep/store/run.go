@@ -161,8 +161,12 @@ func (r *Run) recover(m *Meta, write bool) (Recovery, error) {
 				r.log.Warn().Err(err).Str("file", c.name).Msg("torn end not cut")
 				continue
 			}
-			r.log.Warn().Str("file", c.name).Int64("bytes", c.cut).Int("records_kept", c.records).
+			r.log.Warn().Str("run", r.id).Str("file", c.name).Int64("bytes", c.cut).Int("records_kept", c.records).
 				Msg("cut a torn last line")
+			msg := fmt.Sprintf("recovery: cut a torn last line of %d bytes from %s (a write interrupted by a crash); %d records kept", c.cut, c.name, c.records)
+			if err := r.appendEventLine(event.Event{Time: time.Now().UTC(), Type: event.TypeLog, Run: r.id, Message: msg}); err != nil {
+				r.log.Warn().Err(err).Msg("could not record the recovery in the events")
+			}
 		}
 		rec.TempsRemoved = removeTemps(r.dir)
 	}
@@ -184,8 +188,18 @@ func (r *Run) recover(m *Meta, write bool) (Recovery, error) {
 
 // writeInterrupted records the interruption: a state event, then meta.
 func (r *Run) writeInterrupted(m Meta, now time.Time, msg string) error {
-	line, err := json.Marshal(event.Event{Time: now, Type: event.TypeState, Run: r.id,
-		State: event.Interrupted, From: m.State, Message: msg})
+	if err := r.appendEventLine(event.Event{Time: now, Type: event.TypeState, Run: r.id,
+		State: event.Interrupted, From: m.State, Message: msg}); err != nil {
+		return err
+	}
+	m.State, m.Message, m.Updated = event.Interrupted, msg, now
+	return r.writeMeta(m)
+}
+
+// appendEventLine appends one event to events.jsonl and syncs it, outside
+// the writer's path (recovery runs before any writer exists).
+func (r *Run) appendEventLine(e event.Event) error {
+	line, err := json.Marshal(e)
 	if err != nil {
 		return err
 	}
@@ -199,11 +213,7 @@ func (r *Run) writeInterrupted(m Meta, now time.Time, msg string) error {
 		return err
 	}
 	size := st.Size()
-	if err := appendLine(f, &size, append(line, '\n'), true); err != nil {
-		return err
-	}
-	m.State, m.Message, m.Updated = event.Interrupted, msg, now
-	return r.writeMeta(m)
+	return appendLine(f, &size, append(line, '\n'), true)
 }
 
 func truncateSync(path string, size int64) error {

@@ -1,0 +1,40 @@
+# Developer targets for rolloff.
+#
+#   make test          the whole test suite (the README's command)
+#   make reliability   the fault, crash and bad-input suite, ending with one
+#                      summary line of what it observed
+#   make fuzz          every fuzz target for FUZZTIME each (default 10s)
+#   make lint          gofmt -l, go vet and, when installed, staticcheck
+
+SHELL := /bin/bash
+GO ?= go
+FUZZTIME ?= 10s
+STATICCHECK ?= $(shell $(GO) env GOPATH)/bin/staticcheck
+
+.PHONY: test reliability fuzz lint
+
+test:
+	$(GO) test ./...
+
+reliability:
+	@summary=$$(mktemp); \
+	ROLLOFF_RELIABILITY_SUMMARY=$$summary $(GO) test ./sweep/reliability/ -count=1 -v; \
+	status=$$?; \
+	if [ -s $$summary ]; then cat $$summary; else echo "reliability: no summary: the suite did not run to its end"; fi; \
+	rm -f $$summary; \
+	exit $$status
+
+fuzz:
+	bash .ci/fuzz $(FUZZTIME)
+
+lint:
+	@files=$$(gofmt -l .); \
+	if [ -n "$$files" ]; then echo "gofmt -l: not formatted:"; echo "$$files"; exit 1; fi
+	$(GO) vet ./...
+	@if [ -x "$(STATICCHECK)" ]; then \
+		echo "$(STATICCHECK) ./..."; $(STATICCHECK) ./...; \
+	elif command -v staticcheck >/dev/null 2>&1; then \
+		echo "staticcheck ./..."; staticcheck ./...; \
+	else \
+		echo "staticcheck not installed: skipped"; \
+	fi
