@@ -11,6 +11,8 @@ import (
 	"strings"
 	"testing"
 
+	"gonum.org/v1/gonum/mat"
+
 	"rolloff/sweep/point"
 )
 
@@ -197,5 +199,163 @@ func TestInterpolationAloneMisses(t *testing.T) {
 	// A 4th-order Chebyshev is all-pole: two second-order sections.
 	if lo, hi := r.Fitted().Order(); lo != 0 || hi != 4 {
 		t.Errorf("model %s: want two second-order low-pass sections", r.Model.Description)
+	}
+}
+
+// scipyStructures are the true cascades of the SciPy filters (orders from
+// testdata/scipy/make_tables.py: an all-pole low-pass of order 4 is two
+// second-order sections, of order 3 one second- and one first-order; the
+// order-2 band-pass is a second-order high-pass times a second-order
+// low-pass).
+var scipyStructures = map[string]structure{
+	"cheby1_lp4": {LowPass2, LowPass2},
+	"bessel_lp4": {LowPass2, LowPass2},
+	"butter_bp2": {HighPass2, LowPass2},
+	"butter_hp3": {HighPass2, HighPass1},
+	"butter_lp3": {LowPass2, LowPass1},
+}
+
+// thetaOf returns m's parameters (ln f0, ln Q…) in the order of st.
+func thetaOf(t *testing.T, m Model, st structure) []float64 {
+	t.Helper()
+	used := make([]bool, len(m.Sections))
+	var th []float64
+	for _, k := range st {
+		found := false
+		for i, s := range m.Sections {
+			if !used[i] && s.Kind == k {
+				used[i], found = true, true
+				th = append(th, math.Log(s.FHz))
+				if k.order() == 2 {
+					th = append(th, math.Log(s.Q))
+				}
+				break
+			}
+		}
+		if !found {
+			t.Fatalf("model %s has no %s section for structure %s", m.Describe(), k, st)
+		}
+	}
+	return th
+}
+
+// modelCorners returns ln of the corners of m (those SciPy reports), found
+// as Analyze finds them.
+func modelCorners(pts []point.Point, m *Model, f scipyFilter) []float64 {
+	samples, _ := BuildSamples(pts, nil)
+	o, _ := Options{RefHz: f.RefHz}.withDefaults()
+	a := &analysis{o: o, inc: samples}
+	for _, s := range samples {
+		a.xs, a.ys, a.us = append(a.xs, log10(s.FreqHz)), append(a.ys, s.GainDB), append(a.us, s.UDB)
+	}
+	a.x0, a.x1 = a.xs[0], a.xs[len(a.xs)-1]
+	e := a.estimate(m, denseGrid(a.xs, 0.005), true)
+	var out []float64
+	c := f.Corners[1]
+	for _, pr := range [][2]*float64{{e.LowHz, c.LowHz}, {e.HighHz, c.HighHz}} {
+		if pr[1] != nil && pr[0] != nil {
+			out = append(out, math.Log(*pr[0]))
+		}
+	}
+	return out
+}
+
+// TestScipyNoisyAtNoiseLimit checks that the noisy corners of TestScipyNoisy
+// are as good as the data allow. On every seed, the fit Analyze made with
+// the true structure must reach the least-squares optimum found from the
+// true parameters (those of the noise-free fit, which TestScipyNoiseFree
+// ties to SciPy's corners). And the rms corner error over the seeds must be
+// within 1.6 times the noise limit: the standard deviation of the corner
+// propagated from the covariance (JᵀWJ)⁻¹ of the weighted least-squares
+// parameters (J the Jacobian at the true parameters, W = 1/σ²), the usual
+// first-order (Cramér–Rao) figure for Gaussian noise, from memory. With 20
+// seeds a ratio above 1.6 has a chance of about 1e-4 for an efficient
+// estimator (χ² with 20 degrees of freedom).
+func TestScipyNoisyAtNoiseLimit(t *testing.T) {
+	const seeds, sdDB = 20, 0.05
+	for name, f := range loadScipy(t) {
+		st := scipyStructures[name]
+		pts := loadScipyTable(t, name)
+		r0, err := Analyze(pts, Options{RefHz: f.RefHz})
+		if err != nil || r0.Model == nil {
+			t.Fatalf("%s: noise-free fit: %v", name, err)
+		}
+		th0 := thetaOf(t, r0.Model.Model, st)
+
+		// Noise limit: d ln fc = g·dθ, var = gᵀ(JᵀWJ)⁻¹g.
+		noisy0 := addNoise(pts, sdDB, 1)
+		for i := range noisy0 {
+			noisy0[i].GainDB = pts[i].GainDB // exact gains, declared noise
+		}
+		s0, _ := BuildSamples(noisy0, nil)
+		d0 := newFitData(s0, DefaultNoiseFloorDB, DefaultMaxFitPoints)
+		e0 := newEvaluator(d0, st)
+		e0.eval(th0)
+		np := e0.np
+		info := mat.NewSymDense(np, nil)
+		for i := range d0.y {
+			for a := 0; a < np; a++ {
+				for b := a; b < np; b++ {
+					info.SetSym(a, b, info.At(a, b)+d0.w[i]*e0.jac[i*np+a]*e0.jac[i*np+b])
+				}
+			}
+		}
+		var chol mat.Cholesky
+		if !chol.Factorize(info) {
+			t.Fatalf("%s: singular information matrix", name)
+		}
+		var cov mat.SymDense
+		if err := chol.InverseTo(&cov); err != nil {
+			t.Fatal(err)
+		}
+		m0, _ := e0.model(th0, d0)
+		base := modelCorners(noisy0, &m0, f)
+		var limit2 float64 // mean corner variance
+		for k := range base {
+			g := mat.NewVecDense(np, nil)
+			for a := 0; a < np; a++ {
+				th := append([]float64(nil), th0...)
+				th[a] += 1e-6
+				m, _ := e0.model(th, d0)
+				g.SetVec(a, (modelCorners(noisy0, &m, f)[k]-base[k])/1e-6)
+			}
+			limit2 += mat.Inner(g, &cov, g) / float64(len(base))
+		}
+
+		var ss float64
+		n := 0
+		for seed := uint64(1); seed <= seeds; seed++ {
+			noisy := addNoise(pts, sdDB, seed)
+			r, err := Analyze(noisy, Options{RefHz: f.RefHz})
+			if err != nil || r.Model == nil {
+				t.Fatalf("%s seed %d: %v", name, seed, err)
+			}
+			s, _ := BuildSamples(noisy, nil)
+			d := newFitData(s, DefaultNoiseFloorDB, DefaultMaxFitPoints)
+			_, chi2 := newEvaluator(d, st).lm(th0)
+			rmsTrue := math.Sqrt(chi2/float64(len(d.y))) * sdDB // uniform σ
+			got := math.NaN()
+			for _, c := range r.Model.Candidates {
+				if c.Structure == st.String() {
+					got = c.ResidualRMSDB
+				}
+			}
+			if !(got <= rmsTrue*(1+1e-7)) {
+				t.Errorf("%s seed %d: Analyze's %s fit has residual %v dB rms, the least-squares optimum from the true parameters %v dB", name, seed, st, got, rmsTrue)
+			}
+			// Analyze's reported corners against SciPy's.
+			c := f.Corners[1]
+			for _, pr := range [][2]*float64{{r.LowHz, c.LowHz}, {r.HighHz, c.HighHz}} {
+				if e, ok := relErr(pr[0], pr[1]); ok && pr[1] != nil {
+					ss += e * e
+					n++
+				}
+			}
+		}
+		rms, limit := math.Sqrt(ss/float64(n)), math.Sqrt(limit2)
+		t.Logf("%s: rms corner error %.3f %%, noise limit %.3f %% (a corner beyond 0.5 %% with probability %.2f)", name, 100*rms, 100*limit, math.Erfc(0.005/limit/math.Sqrt2))
+		if rms > 1.6*limit {
+			t.Errorf("%s: rms corner error %.3f %% is %.2f times the noise limit %.3f %%", name, 100*rms, rms/limit, 100*limit)
+		}
 	}
 }
