@@ -35,12 +35,18 @@ const demoPlanFile = "demo-plan.toml"
 // against the simulated DUT's analytic corners.
 const demoMaxCornerErr = 0.005
 
+// demoServeTimeScale is the simulated bench's time scale when the demo
+// serves the live page: the sweep then takes some twenty seconds, long
+// enough to watch the points arrive.
+const demoServeTimeScale = 5
+
 func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	fs := flag.NewFlagSet("rolloff demo", flag.ContinueOnError)
 	fs.SetOutput(env.stderr)
 	noServe := fs.Bool("no-serve", false, "do not serve the live page; exit when the sweep is done")
 	out := fs.String("out", "runs", "run store directory")
 	addr := fs.String("addr", "127.0.0.1:8750", "live page listen address host:port")
+	scale := fs.Float64("time-scale", 0, "simulated seconds per wall second, 1 to 1e6 (default: the bench file's 50 with --no-serve, 5 when serving so that points can be watched arriving)")
 	fs.Usage = func() {
 		fmt.Fprintf(env.stderr, "usage: rolloff demo [--no-serve] [--out DIR] [--addr HOST:PORT]\n\n"+
 			"Starts the simulated bench in-process (the line-driver prototype, time-scaled),\n"+
@@ -67,7 +73,20 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return fmt.Errorf("--out %s: %w", *out, err)
 	}
 	st.SetLogger(env.log)
-	b, err := bench.OpenDemo(ctx, env.log)
+	cfg, err := configs.LoadBench(configs.SimBench)
+	if err != nil {
+		return err
+	}
+	switch {
+	case *scale != 0:
+		if !(*scale >= 1 && *scale <= 1e6) {
+			return &exitError{code: 2, err: fmt.Errorf("--time-scale %g: want 1 to 1e6", *scale)}
+		}
+		cfg.TimeScale, cfg.Sim.TimeScale = *scale, *scale
+	case !*noServe:
+		cfg.TimeScale, cfg.Sim.TimeScale = demoServeTimeScale, demoServeTimeScale
+	}
+	b, err := bench.Open(ctx, cfg, env.log)
 	if err != nil {
 		return err
 	}
