@@ -1277,7 +1277,13 @@ func (s *sweeper) progress() {
 	if s.modelSum > 0 {
 		ratio = s.actSum / s.modelSum
 	}
-	eta := remaining * ratio / r.scale()
+	remaining *= ratio
+	if n := s.refineExpected() - s.refinedCount(); n > 0 && len(s.pts) > 0 {
+		// The refinement still to come, at the mean measured point time
+		// (its points sit on the skirts, where the dwells are).
+		remaining += float64(n) * s.actSum / float64(len(s.pts))
+	}
+	eta := remaining / r.scale()
 	r.mu.Lock()
 	r.status.Done, r.status.Total, r.status.ETASec = done, total, eta
 	elapsed := r.clock.Now().Sub(r.t0).Seconds()

@@ -21,6 +21,27 @@ func (s *sweeper) refinedCount() int {
 	return n
 }
 
+// refineExpected estimates how many points the corner refinement will add:
+// for each of two corners, the bisections in log f that take a bracket of
+// one plan step down to the resolution, within the plan's maximum.
+func (s *sweeper) refineExpected() int {
+	rf := s.plan.Refine
+	if !rf.Enabled || len(s.freqs) < 2 || !(rf.ResolutionRel > 0) {
+		return 0
+	}
+	mid := len(s.freqs) / 2
+	step := math.Abs(math.Log(s.freqs[mid].Hz / s.freqs[mid-1].Hz))
+	if !(step > 0) {
+		return 0
+	}
+	per := int(math.Ceil(math.Log2(step / math.Log1p(rf.ResolutionRel))))
+	n := 2 * max(per, 0)
+	if rf.MaxPoints > 0 {
+		n = min(n, rf.MaxPoints)
+	}
+	return n
+}
+
 // sortedPoints returns the usable points by frequency.
 func (s *sweeper) sortedPoints() []point.Point {
 	var v []point.Point

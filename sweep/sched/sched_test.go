@@ -842,3 +842,45 @@ func TestBeyondConverterBandFlagged(t *testing.T) {
 		t.Fatal("test premise: no point above 50 kHz")
 	}
 }
+
+func TestETAIncludesRefinement(t *testing.T) {
+	// At the end of the planned points the refinement is still to come:
+	// the ETA then must not read zero, and must be within a factor of 3
+	// of the time that actually remained.
+	clk := newFakeClock()
+	c := newChain(clk)
+	p := testPlan(plan.RangeRemote)
+	p.Refine = plan.Refine{Enabled: true, LevelDB: plan.HalfPowerDB, ResolutionRel: 0.002, MaxPoints: 40}
+	rec := &memRecorder{}
+	inst := instruments(c)
+	inst.Converter = remoteChain{c}
+	if _, err := runOn(t, inst, p, rec, Opts{Clock: clk}); err != nil {
+		t.Fatal(err)
+	}
+	freqs, err := p.Freqs()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var atPlanEnd *event.Event
+	var end time.Time
+	for i, e := range rec.events {
+		if e.Type == event.TypeProgress && e.Progress.Done == len(freqs) && atPlanEnd == nil {
+			atPlanEnd = &rec.events[i]
+		}
+		if e.Type == event.TypeState && e.State == event.Done {
+			end = e.Time
+		}
+	}
+	if atPlanEnd == nil || end.IsZero() {
+		t.Fatal("no progress event at the end of the planned points, or no done state")
+	}
+	left := end.Sub(atPlanEnd.Time).Seconds()
+	eta := atPlanEnd.Progress.ETASec
+	if left < 1 {
+		t.Fatalf("test premise: only %.3g s of refinement", left)
+	}
+	if eta < left/3 || eta > 3*left {
+		t.Errorf("ETA at the end of the planned points %.3g s, actually %.3g s remained", eta, left)
+	}
+	t.Logf("ETA %.3g s, remaining %.3g s", eta, left)
+}
