@@ -34,6 +34,8 @@ const (
 	haltTimeout = 3 * time.Second
 	// haltRetryFor bounds the retries of a failed halt.
 	haltRetryFor = 10 * time.Minute
+	// vinReadings bounds the readings of the Vin channel per point.
+	vinReadings = 6
 )
 
 // What a range change does to the converter's averaged state.
@@ -1158,12 +1160,20 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 		mean = s.ranges()[s.rangeIdx].FullScaleVrms * w.OverFraction
 		settleS = r.phys() - tStep
 	}
+	vin := s.ampVrms
+	if s.inst.VinMeter != nil && !over && s.outputOn {
+		v, err := s.readVin(ctx)
+		if err != nil {
+			return pt, false, err
+		}
+		vin = v
+	}
 	pt = point.Point{
 		Index:    idx,
 		FreqHz:   freqHz,
-		VinVrms:  s.ampVrms,
+		VinVrms:  vin,
 		VoutVrms: mean,
-		GainDB:   20 * math.Log10(mean/s.ampVrms),
+		GainDB:   20 * math.Log10(mean/vin),
 		DCVolts:  dcMean,
 		Readings: len(win),
 		StdRel:   stdRel,
@@ -1290,4 +1300,31 @@ func (s *sweeper) progress() {
 	freq := r.status.FreqHz
 	r.mu.Unlock()
 	r.emit(event.Event{Type: event.TypeProgress, Progress: &event.Progress{Done: done, Total: total, FreqHz: freq, ETASec: eta, Elapsed: elapsed}})
+}
+
+// readVin reads the DUT input on the bench's second channel until two
+// consecutive readings agree within the plan's tolerance (the channel's
+// own averaging must settle after an output or amplitude change), at most
+// vinReadings readings; the last one is used either way.
+func (s *sweeper) readVin(ctx context.Context) (float64, error) {
+	tol := s.plan.Settle.Tolerance
+	prev := math.NaN()
+	var v float64
+	for i := 0; i < vinReadings; i++ {
+		if err := s.r.try(ctx, "Vin reading", func(ctx context.Context) error {
+			var err error
+			v, err = s.inst.VinMeter.ReadAC(ctx)
+			return err
+		}); err != nil {
+			return 0, err
+		}
+		if !(v > 0) || math.IsInf(v, 0) {
+			return 0, fmt.Errorf("sched: Vin reading %g Vrms: %w", v, driver.ErrMalformed)
+		}
+		if math.Abs(v-prev) <= tol*v {
+			break
+		}
+		prev = v
+	}
+	return v, nil
 }

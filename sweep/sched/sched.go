@@ -39,6 +39,9 @@ type Instruments struct {
 	DCVoltmeter driver.DCVoltmeter
 	Converter   driver.Converter
 	ACVoltmeter driver.ACVoltmeter
+	// VinMeter, when set, measures the DUT input at every point; the gain
+	// is then Vout over the measured Vin instead of the generator setting.
+	VinMeter driver.ACVoltmeter
 
 	// TimeScale is how many physical (model) seconds pass per wall second:
 	// 1 (or 0) on a real bench, more on a time-scaled simulated bench.

@@ -884,3 +884,44 @@ func TestETAIncludesRefinement(t *testing.T) {
 	}
 	t.Logf("ETA %.3g s, remaining %.3g s", eta, left)
 }
+
+// vinMeter is a second channel on the DUT input: the generator's setting
+// less a 2 % loss in the source impedance, the case a measured Vin exists
+// for.
+type vinMeter struct {
+	c     *chain
+	reads int
+}
+
+func (m *vinMeter) ConfigureAC(ctx context.Context, cfg driver.ACConfig) error { return nil }
+func (m *vinMeter) ReadAC(ctx context.Context) (float64, error) {
+	m.reads++
+	m.c.mu.Lock()
+	defer m.c.mu.Unlock()
+	return 0.98 * m.c.ampVrms, nil
+}
+
+func TestMeasuredVin(t *testing.T) {
+	clk := newFakeClock()
+	c := newChain(clk)
+	rec := &memRecorder{}
+	inst := instruments(c)
+	inst.Converter = remoteChain{c}
+	vm := &vinMeter{c: c}
+	inst.VinMeter = vm
+	if _, err := runOn(t, inst, testPlan(plan.RangeRemote), rec, Opts{Clock: clk}); err != nil {
+		t.Fatal(err)
+	}
+	if vm.reads == 0 {
+		t.Fatal("the Vin channel was never read")
+	}
+	for _, pt := range rec.points {
+		if math.Abs(pt.VinVrms/(0.98*0.05)-1) > 1e-12 {
+			t.Errorf("%g Hz: Vin %g Vrms, want the measured %g", pt.FreqHz, pt.VinVrms, 0.98*0.05)
+		}
+		// gain = Vout / Vin (definition), from the measured Vin.
+		if want := 20 * math.Log10(pt.VoutVrms/pt.VinVrms); math.Abs(pt.GainDB-want) > 1e-9 {
+			t.Errorf("%g Hz: gain %g dB, Vout/Vin gives %g dB", pt.FreqHz, pt.GainDB, want)
+		}
+	}
+}

@@ -22,6 +22,7 @@ func Instruments(b *bench.Bench, log zerolog.Logger) sched.Instruments {
 		DCVoltmeter: b.DCVoltmeter,
 		Converter:   b.Converter,
 		ACVoltmeter: b.ACVoltmeter,
+		VinMeter:    b.Vin,
 		TimeScale:   b.TimeScale,
 		Limits:      b.Generator.Limits(),
 		LineHz:      b.LineHz,
