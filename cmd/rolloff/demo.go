@@ -23,10 +23,11 @@ func init() {
 	})
 }
 
-// demoServe serves the live page of the demo's store and bench until ctx
-// is done (set by the page server's command file); nil when this build
-// has no page server.
-var demoServe func(ctx context.Context, env *cmdEnv, b *bench.Bench, st *store.Store, addr string) error
+// demoServe serves the live page of the demo's store and bench, submits
+// the demo plan to the daemon's queue, reports the run as sweepAndReport
+// does (compare prints the corner comparison) and serves until ctx is
+// cancelled. It is set by serve.go.
+var demoServe func(ctx context.Context, env *cmdEnv, b *bench.Bench, st *store.Store, addr string, p *plan.Plan, planData []byte, compare func(map[string]any) error) error
 
 // demoPlanFile is the embedded demo plan.
 const demoPlanFile = "demo-plan.toml"
@@ -94,30 +95,21 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err := p.Validate(b.Limits); err != nil {
 		return err
 	}
+	compare := func(res map[string]any) error {
+		return compareCorners(env, b, p, res)
+	}
+	if !*noServe {
+		// The daemon owns the demo's run, so that the page can pause,
+		// resume and abort it, and goes on serving until interrupted.
+		return demoServe(ctx, env, b, st, *addr, p, planData, compare)
+	}
 	run, err := st.Create(store.CreateOpts{PlanFile: demoPlanFile, PlanData: planData, Plan: p, BenchFile: b.Raw, Identities: b.Identities})
 	if err != nil {
 		return err
 	}
 	defer run.Close()
-	// The live page serves the store and the bench while the sweep runs,
-	// and goes on until interrupted.
-	served := make(chan error, 1)
-	if !*noServe {
-		go func() { served <- demoServe(ctx, env, b, st, *addr) }()
-	}
 	opts := sched.Opts{Operator: simOperator(env, b, nil)}
-	compare := func(res map[string]any) error {
-		return compareCorners(env, b, p, res)
-	}
-	err = sweepAndReport(ctx, env, b, p, run, opts, compare)
-	if *noServe {
-		return err
-	}
-	if err != nil {
-		env.log.Error().Err(err).Msg("demo sweep")
-	}
-	fmt.Fprintf(env.stdout, "serving the live page until interrupted\n")
-	return <-served
+	return sweepAndReport(ctx, env, b, p, run, opts, compare)
 }
 
 // demoPlan returns the demo plan, the embedded demo-plan.toml: the line

@@ -1,14 +1,22 @@
 package main
 
 import (
+	"bufio"
 	"bytes"
+	"context"
+	"encoding/json"
+	"io"
 	"math"
+	"net/http"
 	"os"
 	"path/filepath"
 	"regexp"
 	"strconv"
 	"strings"
 	"testing"
+	"time"
+
+	"github.com/rs/zerolog"
 )
 
 // TestDemoNoServe runs `rolloff demo --no-serve` as a user would and checks
@@ -94,5 +102,68 @@ func TestRunRefusesBadPlan(t *testing.T) {
 	}
 	if runs, _ := filepath.Glob(filepath.Join(dir, "2*")); len(runs) != 0 {
 		t.Errorf("a run directory was created for a refused plan: %v", runs)
+	}
+}
+
+// TestDemoServed runs the demo with its live page: the daemon owns the
+// demo's run (the page can steer it), the corners are reported as in the
+// headless demo, and cancelling stops the daemon.
+func TestDemoServed(t *testing.T) {
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	pr, pw := io.Pipe()
+	env := &cmdEnv{log: newLogger(io.Discard, false, zerolog.WarnLevel), stdout: pw, stderr: io.Discard, stdin: strings.NewReader("")}
+	done := make(chan error, 1)
+	go func() {
+		err := runDemoCmd(ctx, env, []string{"--out", t.TempDir(), "--addr", "127.0.0.1:0", "--time-scale", "50"})
+		pw.Close()
+		done <- err
+	}()
+	var url, runID string
+	corners := 0
+	sc := bufio.NewScanner(pr)
+	for sc.Scan() {
+		line := sc.Text()
+		switch {
+		case strings.HasPrefix(line, "live page: "):
+			url = strings.TrimPrefix(line, "live page: ")
+		case strings.HasPrefix(line, "run "):
+			runID = strings.TrimSuffix(strings.Fields(line)[1], ":")
+		case strings.Contains(line, "corner: measured"):
+			corners++
+		}
+		if strings.HasPrefix(line, "serving the live page") {
+			break
+		}
+	}
+	go io.Copy(io.Discard, pr)
+	if url == "" || runID == "" || corners != 2 {
+		t.Fatalf("url %q, run %q, %d corner comparisons", url, runID, corners)
+	}
+	resp, err := http.Get(url + "api/runs/" + runID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var info struct {
+		State    string `json:"state"`
+		External bool   `json:"external"`
+		Points   int    `json:"points"`
+	}
+	err = json.NewDecoder(resp.Body).Decode(&info)
+	resp.Body.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if info.State != "done" || info.External || info.Points < 73 {
+		t.Errorf("the demo's run as the daemon sees it: %+v (want done, owned by the daemon, ≥ 73 points)", info)
+	}
+	cancel()
+	select {
+	case err := <-done:
+		if err != nil {
+			t.Errorf("demo after cancel: %v", err)
+		}
+	case <-time.After(10 * time.Second):
+		t.Fatal("the served demo did not stop within 10 s of cancellation")
 	}
 }

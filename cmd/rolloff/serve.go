@@ -2,14 +2,19 @@ package main
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"flag"
 	"fmt"
 	"os"
+	"path/filepath"
 	"runtime/debug"
 	"time"
 
 	"rolloff/driver/bench"
+	"rolloff/sweep/event"
+	"rolloff/sweep/plan"
+	"rolloff/sweep/queue"
 	"rolloff/sweep/store"
 	"rolloff/web"
 )
@@ -23,9 +28,10 @@ func init() {
 	demoServe = serveDemo
 }
 
-// serveDemo serves the live page for the demo: its bench and its store,
-// where the demo's own run is followed as it is written.
-func serveDemo(ctx context.Context, env *cmdEnv, b *bench.Bench, st *store.Store, addr string) error {
+// serveDemo serves the live page for the demo over its bench and store,
+// and runs the demo plan through the daemon's queue so that the page can
+// steer it like any run it started.
+func serveDemo(ctx context.Context, env *cmdEnv, b *bench.Bench, st *store.Store, addr string, p *plan.Plan, planData []byte, compare func(map[string]any) error) error {
 	srv, err := web.New(web.Config{Addr: addr, Bench: b, Store: st, Log: env.log, Version: serveVersion()})
 	if err != nil {
 		return err
@@ -34,7 +40,59 @@ func serveDemo(ctx context.Context, env *cmdEnv, b *bench.Bench, st *store.Store
 	if srv.Token() != "" {
 		fmt.Fprintf(env.stdout, "one-time page link: %s\n", srv.OnceURL())
 	}
-	return srv.Serve(ctx)
+	served := make(chan error, 1)
+	go func() { served <- srv.Serve(ctx) }()
+	start := time.Now()
+	id, err := srv.Queue().Submit(ctx, p, queue.Source{Name: demoPlanFile, Data: planData})
+	if err != nil {
+		env.log.Error().Err(err).Msg("demo sweep not started")
+		return errors.Join(err, <-served)
+	}
+	if err := reportQueued(ctx, env, srv.Queue(), st, id, start, compare); err != nil {
+		env.log.Error().Err(err).Msg("demo sweep")
+	}
+	if ctx.Err() == nil {
+		fmt.Fprintf(env.stdout, "serving the live page until interrupted\n")
+	}
+	return <-served
+}
+
+// reportQueued waits for a queued run to end and prints it as
+// sweepAndReport does.
+func reportQueued(ctx context.Context, env *cmdEnv, q *queue.Queue, st *store.Store, id string, start time.Time, compare func(map[string]any) error) error {
+	tick := time.NewTicker(100 * time.Millisecond)
+	defer tick.Stop()
+	var info queue.Info
+	for {
+		var err error
+		if info, err = q.Get(id); err != nil {
+			return err
+		}
+		if info.State.Final() || info.State == event.Interrupted {
+			break
+		}
+		select {
+		case <-ctx.Done():
+			return ctx.Err()
+		case <-tick.C:
+		}
+	}
+	fmt.Fprintf(env.stdout, "run %s: %s\n", id, filepath.Join(st.Dir(), id))
+	if info.State != event.Done {
+		return fmt.Errorf("run %s ended %s: %s", id, info.State, info.Message)
+	}
+	fmt.Fprintf(env.stdout, "done: %d points in %s\n", info.Points, time.Since(start).Round(time.Millisecond))
+	var res map[string]any
+	if len(info.Result) > 0 {
+		if err := json.Unmarshal(info.Result, &res); err != nil {
+			return fmt.Errorf("result: %w", err)
+		}
+	}
+	printCorners(env.stdout, res)
+	if compare != nil {
+		return compare(res)
+	}
+	return nil
 }
 
 func runServe(ctx context.Context, env *cmdEnv, args []string) error {
