@@ -98,6 +98,14 @@
         return i.role + ': ' + [id.manufacturer, id.model, id.serial, id.firmware].filter(Boolean).join(', ') + (i.connected ? '' : ' (not connected)');
       }).join('\n');
       const f = $('plan-form');
+      if (!state.strategyWatched) {
+        state.strategyWatched = true;
+        f.strategy.addEventListener('change', function () { state.strategyTouched = true; });
+      }
+      if ((b.roles || []).indexOf('switch') >= 0 && !state.strategyTouched) {
+        // The converter's range is relay-switched: no hand needed.
+        f.strategy.value = 'remote';
+      }
       if (b.limits) {
         if (b.limits.max_vrms > 0) f.vrms.max = b.limits.max_vrms;
         if (b.limits.min_freq_hz > 0) { f.start_hz.min = b.limits.min_freq_hz; f.stop_hz.min = b.limits.min_freq_hz; }
