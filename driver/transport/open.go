@@ -150,6 +150,16 @@ func (b backoff) retry(ctx context.Context, try func() error) (int, error) {
 	}
 }
 
+// relinkFailed is the error of a Write whose link could not be
+// re-established: what (e.g. "reconnect", "reopen") gave up after tries,
+// naming the context's end when that is why.
+func relinkFailed(ctx context.Context, name, what string, tries int, err error) error {
+	if ctx.Err() != nil {
+		return fmt.Errorf("transport: %s: write: %w: %s gave up after %d tries: %w (%w)", name, driver.ErrDisconnected, what, tries, ctxFailure(ctx), err)
+	}
+	return fmt.Errorf("transport: %s: write: %w: %s gave up after %d tries: %w", name, driver.ErrDisconnected, what, tries, err)
+}
+
 // takeMessage removes the first message ending in term from *buf and
 // returns it without the terminator.
 func takeMessage(buf *[]byte, term string) ([]byte, bool) {

@@ -172,10 +172,7 @@ func (c *tcpConn) reconnect(ctx context.Context) (net.Conn, error) {
 		return err
 	})
 	if err != nil {
-		if ctx.Err() != nil {
-			return nil, fmt.Errorf("transport: %s: write: %w: reconnect gave up after %d tries: %w (%w)", c.name, driver.ErrDisconnected, tries, ctxFailure(ctx), err)
-		}
-		return nil, fmt.Errorf("transport: %s: write: %w: reconnect gave up after %d tries: %w", c.name, driver.ErrDisconnected, tries, err)
+		return nil, relinkFailed(ctx, c.name, "reconnect", tries, err)
 	}
 	c.state.Lock()
 	defer c.state.Unlock()

@@ -226,10 +226,7 @@ func (c *usbtmcConn) reopen(ctx context.Context) (*os.File, error) {
 		return err
 	})
 	if err != nil {
-		if ctx.Err() != nil {
-			return nil, fmt.Errorf("transport: %s: write: %w: reopen gave up after %d tries: %w (%w)", c.name, driver.ErrDisconnected, tries, ctxFailure(ctx), err)
-		}
-		return nil, fmt.Errorf("transport: %s: write: %w: reopen gave up after %d tries: %w", c.name, driver.ErrDisconnected, tries, err)
+		return nil, relinkFailed(ctx, c.name, "reopen", tries, err)
 	}
 	c.state.Lock()
 	defer c.state.Unlock()
