@@ -164,11 +164,17 @@ func sweepAndReport(ctx context.Context, env *cmdEnv, b *bench.Bench, p *plan.Pl
 		}
 		return err
 	}
-	fmt.Fprintf(env.stdout, "done: %d points in %s\n", r.Status().Done, time.Since(start).Round(time.Millisecond))
+	return reportDone(env, r.Status().Done, time.Since(start), result, afterCorners)
+}
+
+// reportDone prints a finished run's point count, time and corners, then
+// runs afterCorners (the demo's comparison) on its result.
+func reportDone(env *cmdEnv, points int, took time.Duration, result json.RawMessage, afterCorners func(res map[string]any) error) error {
+	fmt.Fprintf(env.stdout, "done: %d points in %s\n", points, took.Round(time.Millisecond))
 	var res map[string]any
 	if len(result) > 0 {
-		if jerr := json.Unmarshal(result, &res); jerr != nil {
-			return fmt.Errorf("result: %w", jerr)
+		if err := json.Unmarshal(result, &res); err != nil {
+			return fmt.Errorf("result: %w", err)
 		}
 	}
 	printCorners(env.stdout, res)

@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"flag"
 	"fmt"
@@ -81,18 +80,7 @@ func reportQueued(ctx context.Context, env *cmdEnv, q *queue.Queue, st *store.St
 	if info.State != event.Done {
 		return fmt.Errorf("run %s ended %s: %s", id, info.State, info.Message)
 	}
-	fmt.Fprintf(env.stdout, "done: %d points in %s\n", info.Points, time.Since(start).Round(time.Millisecond))
-	var res map[string]any
-	if len(info.Result) > 0 {
-		if err := json.Unmarshal(info.Result, &res); err != nil {
-			return fmt.Errorf("result: %w", err)
-		}
-	}
-	printCorners(env.stdout, res)
-	if compare != nil {
-		return compare(res)
-	}
-	return nil
+	return reportDone(env, info.Points, time.Since(start), info.Result, compare)
 }
 
 func runServe(ctx context.Context, env *cmdEnv, args []string) error {
