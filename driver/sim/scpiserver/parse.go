@@ -72,16 +72,27 @@ type unit struct {
 // splitUnits splits a program message at the ";" separators that are
 // outside strings and parentheses.
 func splitUnits(msg string) ([]string, *Error) {
-	var out []string
+	out, _, unterminated := splitOutside(msg, ';')
+	if unterminated {
+		return nil, Errorf(InvalidStringData, "unterminated string")
+	}
+	return out, nil
+}
+
+// splitOutside splits s at every sep outside quoted strings (a doubled
+// quote stays inside the string) and parentheses. unbalanced reports a
+// ")" without its "(" or a "(" left open; unterminated, a string left
+// open.
+func splitOutside(s string, sep byte) (out []string, unbalanced, unterminated bool) {
 	depth := 0
 	var quote byte
 	start := 0
-	for i := 0; i < len(msg); i++ {
-		c := msg[i]
+	for i := 0; i < len(s); i++ {
+		c := s[i]
 		switch {
 		case quote != 0:
 			if c == quote {
-				if i+1 < len(msg) && msg[i+1] == quote {
+				if i+1 < len(s) && s[i+1] == quote {
 					i++ // doubled quote inside a string
 				} else {
 					quote = 0
@@ -94,17 +105,15 @@ func splitUnits(msg string) ([]string, *Error) {
 		case c == ')':
 			if depth > 0 {
 				depth--
+			} else {
+				unbalanced = true
 			}
-		case c == ';' && depth == 0:
-			out = append(out, msg[start:i])
+		case c == sep && depth == 0:
+			out = append(out, s[start:i])
 			start = i + 1
 		}
 	}
-	if quote != 0 {
-		return nil, Errorf(InvalidStringData, "unterminated string")
-	}
-	out = append(out, msg[start:])
-	return out, nil
+	return append(out, s[start:]), unbalanced || depth != 0, quote != 0
 }
 
 func isSpace(c byte) bool {
@@ -213,39 +222,10 @@ func parseMnem(s string) (mnem, *Error) {
 
 // splitArgs splits program data at commas outside strings and parentheses.
 func splitArgs(s string) ([]string, *Error) {
-	var out []string
-	depth := 0
-	var quote byte
-	start := 0
-	for i := 0; i < len(s); i++ {
-		c := s[i]
-		switch {
-		case quote != 0:
-			if c == quote {
-				if i+1 < len(s) && s[i+1] == quote {
-					i++
-				} else {
-					quote = 0
-				}
-			}
-		case c == '"' || c == '\'':
-			quote = c
-		case c == '(':
-			depth++
-		case c == ')':
-			depth--
-			if depth < 0 {
-				return nil, Errorf(InvalidExpression, "unbalanced parenthesis")
-			}
-		case c == ',' && depth == 0:
-			out = append(out, s[start:i])
-			start = i + 1
-		}
-	}
-	if depth != 0 {
+	out, unbalanced, _ := splitOutside(s, ',')
+	if unbalanced {
 		return nil, Errorf(InvalidExpression, "unbalanced parenthesis")
 	}
-	out = append(out, s[start:])
 	for i, e := range out {
 		e = strings.TrimFunc(e, func(r rune) bool { return r < 0x80 && isSpace(byte(r)) })
 		if e == "" {
