@@ -217,7 +217,7 @@ func (g *bridge) SetState(ctx context.Context, id string, s event.State, msg str
 		}
 	}
 	err := r.SetState(s, msg)
-	if s.Final() || s == event.Interrupted {
+	if s.Ended() {
 		// Nothing will run it in this daemon: let the lock go, so that
 		// a later daemon (or the CLI) may resume it.
 		if s.Final() {

@@ -171,7 +171,7 @@ func (r *Run) recover(m *Meta, write bool) (Recovery, error) {
 		rec.TempsRemoved = removeTemps(r.dir)
 	}
 	st := m.State
-	if !st.Final() && st != event.Interrupted {
+	if !st.Ended() {
 		rec.Interrupted, rec.PrevState = true, st
 		msg := "found " + string(st) + " with no live owner"
 		now := time.Now().UTC()

@@ -501,7 +501,7 @@ func (s *Store) summary(id string) Summary {
 	}
 	sum.Name, sum.Created, sum.Updated, sum.State, sum.Message = m.Name, m.Created, m.Updated, m.State, m.Message
 	sum.Plan, sum.PlanPoints = m.Plan, m.Plan.Points
-	if !m.State.Final() && m.State != event.Interrupted && !r.liveOwner() {
+	if !m.State.Ended() && !r.liveOwner() {
 		sum.State = event.Interrupted
 	}
 	if data, err := os.ReadFile(filepath.Join(r.dir, FilePoints)); err == nil {
