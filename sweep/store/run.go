@@ -270,8 +270,15 @@ func (r *Run) scanEventsFile() ([]event.Event, scanResult, int64, error) {
 
 // readPoints reads the stored points from disk, ignoring a torn end.
 func (r *Run) readPoints() ([]point.Point, error) {
-	pts, _, _, err := r.scanPointsFile()
-	return pts, err
+	f, err := os.Open(r.path(FilePoints))
+	if errors.Is(err, fs.ErrNotExist) {
+		return nil, nil
+	}
+	if err != nil {
+		return nil, fmt.Errorf("store: run %s: %w", r.id, err)
+	}
+	defer f.Close()
+	return ReadPoints(f, r.path(FilePoints))
 }
 
 // Lock makes this handle the run's owner, so that it may write: it takes
