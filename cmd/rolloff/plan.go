@@ -89,7 +89,7 @@ func runPlanCmd(ctx context.Context, env *cmdEnv, args []string) error {
 }
 
 // timeScale returns the simulated bench's time scale (1 on real benches).
-func timeScale(cfg *profile.Bench) float64 {
+func timeScale(cfg *profile.BenchFile) float64 {
 	if cfg.TimeScale > 0 {
 		return cfg.TimeScale
 	}

@@ -73,7 +73,7 @@ func runSim(ctx context.Context, env *cmdEnv, args []string) error {
 
 // loadSimBench loads a bench file from disk, or the embedded file of the
 // same base name under configs/ when the path does not exist on disk.
-func loadSimBench(path string) (*profile.Bench, error) {
+func loadSimBench(path string) (*profile.BenchFile, error) {
 	if _, err := os.Stat(path); err == nil {
 		return profile.LoadBench(path)
 	} else if !errors.Is(err, os.ErrNotExist) {

@@ -26,7 +26,7 @@ func testCtx(t *testing.T) context.Context {
 }
 
 // benchFrom loads bench text against the embedded profiles.
-func benchFrom(t *testing.T, text string) *profile.Bench {
+func benchFrom(t *testing.T, text string) *profile.BenchFile {
 	t.Helper()
 	m := fstest.MapFS{}
 	for _, n := range configs.Names() {

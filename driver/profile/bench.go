@@ -28,9 +28,10 @@ const (
 // role; it needs a [sim] table in the bench file.
 const AddressSim = "sim"
 
-// Bench is a bench file: which instrument plays which role, at which
-// address, and the bench's own limits.
-type Bench struct {
+// BenchFile is a decoded and validated bench file: which instrument plays
+// which role, at which address, with its profile resolved, and the
+// bench's own limits.
+type BenchFile struct {
 	File string `toml:"-"` // bench file name as given
 	Raw  []byte `toml:"-"` // bench file bytes as read
 
@@ -124,7 +125,7 @@ type ConverterRole struct {
 }
 
 // DCConfig returns the voltmeter configuration the bench asks for.
-func (b *Bench) DCConfig() driver.DCConfig {
+func (b *BenchFile) DCConfig() driver.DCConfig {
 	v := b.Voltmeter
 	if v == nil {
 		return driver.DCConfig{}
@@ -160,7 +161,7 @@ type ReadFunc func(name string) ([]byte, error)
 
 // LoadBench reads and validates a bench file and the profiles it names
 // from disk; profile paths are relative to the bench file.
-func LoadBench(file string) (*Bench, error) {
+func LoadBench(file string) (*BenchFile, error) {
 	data, err := os.ReadFile(file)
 	if err != nil {
 		return nil, &FieldError{File: file, Msg: "cannot read bench file", Err: err}
@@ -175,7 +176,7 @@ func LoadBench(file string) (*Bench, error) {
 }
 
 // LoadBenchFS is LoadBench on a file system such as the embedded configs.
-func LoadBenchFS(fsys fs.FS, name string) (*Bench, error) {
+func LoadBenchFS(fsys fs.FS, name string) (*BenchFile, error) {
 	data, err := fs.ReadFile(fsys, name)
 	if err != nil {
 		return nil, &FieldError{File: name, Msg: "cannot read bench file", Err: err}
@@ -188,9 +189,9 @@ func LoadBenchFS(fsys fs.FS, name string) (*Bench, error) {
 
 // DecodeBench decodes and validates a bench file. read reads a profile by
 // the name resolve gives for the path written in the bench file.
-func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel string) string) (*Bench, error) {
+func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel string) string) (*BenchFile, error) {
 	demo := sim.DemoConfig()
-	b := &Bench{File: file, Raw: append([]byte(nil), data...), Sim: &demo}
+	b := &BenchFile{File: file, Raw: append([]byte(nil), data...), Sim: &demo}
 	if err := decodeStrict(file, data, b); err != nil {
 		return nil, err
 	}
@@ -277,13 +278,13 @@ func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel strin
 	return b, nil
 }
 
-// Bench bounds.
+// BenchFile bounds.
 const (
 	maxTimeScale = 1e6
 	maxBenchVrms = 100.0
 )
 
-func (b *Bench) validate(p *problems) {
+func (b *BenchFile) validate(p *problems) {
 	switch b.VoltmeterMode {
 	case ModeConverter, ModeACDMM:
 	default:
@@ -375,7 +376,7 @@ func (b *Bench) validate(p *problems) {
 	}
 }
 
-func (b *Bench) checkAddress(p *problems, key, addr string) {
+func (b *BenchFile) checkAddress(p *problems, key, addr string) {
 	if addr == "" {
 		p.add(key, addr, "tcp://host[:port], serial:///dev/X?baud=.., usbtmc:///dev/usbtmcN or \"sim\"", "missing address")
 		return
@@ -411,7 +412,7 @@ func checkMeter(p *problems, sect string, rng float64, rangeKey string, nplc, ap
 }
 
 // crossCheck checks the bench against its resolved profiles.
-func (b *Bench) crossCheck(p *problems) {
+func (b *BenchFile) crossCheck(p *problems) {
 	if g := b.Generator; g != nil && g.Generator != nil {
 		gp := g.Generator
 		if b.Limits.MinFreqHz < gp.Limits.MinFreqHz || b.Limits.MaxFreqHz > gp.Limits.MaxFreqHz {
@@ -483,7 +484,7 @@ func checkMeterProfile(p *problems, sect string, rng float64, rangeKey string, n
 
 // syncSim fills the simulated bench from the profiles where [sim] is
 // silent, refuses a [sim] that contradicts them, and validates it.
-func (b *Bench) syncSim(p *problems) {
+func (b *BenchFile) syncSim(p *problems) {
 	c := b.Sim
 	if c == nil {
 		return
