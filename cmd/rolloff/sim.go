@@ -48,7 +48,11 @@ func runSim(ctx context.Context, env *cmdEnv, args []string) error {
 	if cfg.Sim == nil {
 		return fmt.Errorf("%s has no [sim] table: nothing to simulate", cfg.File)
 	}
-	b, err := sim.New(*cfg.Sim)
+	sc, err := sim.FromBenchFile(cfg)
+	if err != nil {
+		return err
+	}
+	b, err := sim.New(*sc)
 	if err != nil {
 		return fmt.Errorf("%s: %w", cfg.File, err)
 	}

@@ -113,7 +113,11 @@ func Open(ctx context.Context, cfg *profile.BenchFile, log zerolog.Logger) (*Ben
 
 func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 	if cfg.Sim != nil {
-		s, err := sim.New(*cfg.Sim)
+		sc, err := sim.FromBenchFile(cfg)
+		if err != nil {
+			return err
+		}
+		s, err := sim.New(*sc)
 		if err != nil {
 			return fmt.Errorf("bench %s: simulated bench: %w", cfg.File, err)
 		}

@@ -4,14 +4,12 @@ import (
 	"errors"
 	"fmt"
 	"io/fs"
-	"math"
 	"os"
 	"path"
 	"path/filepath"
 	"strings"
 
 	"rolloff/driver"
-	"rolloff/driver/sim"
 	"rolloff/driver/transport"
 )
 
@@ -39,7 +37,8 @@ type BenchFile struct {
 	// VoltmeterMode is "converter" (DC voltmeter + converter) or "ac-dmm".
 	VoltmeterMode string `toml:"voltmeter_mode"`
 	// TimeScale speeds the simulated bench up: simulated seconds per real
-	// second. Only allowed with [sim]; 1 when absent.
+	// second. Only allowed with [sim]; 1 when absent (the [sim] table may
+	// then give its own, see sim.FromBenchFile).
 	TimeScale float64     `toml:"time_scale"`
 	Limits    BenchLimits `toml:"limits"`
 
@@ -52,14 +51,14 @@ type BenchFile struct {
 	// output at the DUT input, so the gain uses measured Vin.
 	Vin *ACMeterRole `toml:"vin"`
 
-	// Sim is the simulated bench (DUT, instruments) for "sim" addresses.
-	// Sim is the simulated bench (DUT, instruments) for "sim" addresses,
-	// decoded over sim.DemoConfig: keys the [sim] table leaves out keep
-	// their demo values, and the converter ranges, DC output, hold, DC
-	// voltmeter and DMM ranges and line frequency come from the profiles
-	// the bench names unless [sim] lists them, so that the simulator and
-	// the driver agree.
-	Sim *sim.Config `toml:"sim"`
+	// Sim is the [sim] table as written, nil when there is none: the
+	// simulated bench (DUT, instruments) for "sim" addresses. This
+	// package only notes that it is there; the simulator decodes and
+	// checks it against the profiles (sim.FromBenchFile), with
+	// DecodeTable, Listed and KeyError.
+	Sim map[string]any `toml:"sim"`
+
+	lines keyLines // where each key is written
 }
 
 // BenchLimits protect the DUT. MaxVrms is the largest amplitude the
@@ -190,14 +189,16 @@ func LoadBenchFS(fsys fs.FS, name string) (*BenchFile, error) {
 // DecodeBench decodes and validates a bench file. read reads a profile by
 // the name resolve gives for the path written in the bench file.
 func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel string) string) (*BenchFile, error) {
-	demo := sim.DemoConfig()
-	b := &BenchFile{File: file, Raw: append([]byte(nil), data...), Sim: &demo}
+	b := &BenchFile{File: file, Raw: append([]byte(nil), data...)}
 	if err := decodeStrict(file, data, b); err != nil {
 		return nil, err
 	}
 	p := newProblems(file, data)
+	b.lines = p.lines
 	if !p.lines.has("sim") {
 		b.Sim = nil
+	} else if b.Sim == nil {
+		b.Sim = map[string]any{}
 	}
 	b.validate(p)
 	if err := p.err(); err != nil {
@@ -271,7 +272,6 @@ func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel strin
 	}
 	p = newProblems(file, data)
 	b.crossCheck(p)
-	b.syncSim(p)
 	if err := p.err(); err != nil {
 		return nil, err
 	}
@@ -479,112 +479,6 @@ func checkMeterProfile(p *problems, sect string, rng float64, rangeKey string, n
 		if n > 0 && !contains(nplcs, n) {
 			p.add(sect+".nplc", n, "one of "+formatValue(nplcs), "NPLC not available")
 		}
-	}
-}
-
-// syncSim fills the simulated bench from the profiles where [sim] is
-// silent, refuses a [sim] that contradicts them, and validates it.
-func (b *BenchFile) syncSim(p *problems) {
-	c := b.Sim
-	if c == nil {
-		return
-	}
-	listed := p.lines.has
-	if b.TimeScale != 1 || listed("time_scale") {
-		if listed("sim.time_scale") && c.TimeScale != b.TimeScale {
-			p.add("sim.time_scale", c.TimeScale, fmt.Sprintf("the top-level time_scale (%g), or leave one of them out", b.TimeScale), "two time scales")
-		}
-		c.TimeScale = b.TimeScale
-	}
-	b.TimeScale = c.TimeScale
-	if conv := b.Converter; conv != nil && conv.Spec != nil {
-		cs := conv.Spec
-		if listed("sim.converter.ranges") {
-			// The simulator may give its converter other time constants
-			// (to test settling), but not other ranges than the driver
-			// scales by.
-			same := len(c.Converter.Ranges) == len(cs.Ranges)
-			for i := 0; same && i < len(cs.Ranges); i++ {
-				r := c.Converter.Ranges[i]
-				same = r.Name == cs.Ranges[i].Name && math.Abs(r.FullScaleVrms-cs.Ranges[i].FullScaleVrms) <= 1e-9*cs.Ranges[i].FullScaleVrms
-			}
-			if !same {
-				p.add("sim.converter.ranges", nil, fmt.Sprintf("the names and full scales of the %d ranges of %s, or no ranges here", len(cs.Ranges), cs.File), "the simulator's converter ranges differ from the converter profile")
-			}
-		} else {
-			c.Converter.Ranges = c.Converter.Ranges[:0:0]
-			for _, r := range cs.Ranges {
-				c.Converter.Ranges = append(c.Converter.Ranges, sim.Range{Name: r.Name, FullScaleVrms: r.FullScaleVrms, TimeConstantS: r.TimeConstantS})
-			}
-			if !listed("sim.converter.initial_range") && c.Converter.InitialRange >= len(c.Converter.Ranges) {
-				c.Converter.InitialRange = len(c.Converter.Ranges) - 1
-			}
-		}
-		if !listed("sim.converter.dc_full_scale_v") {
-			c.Converter.DCFullScaleV = cs.DCFullScaleV
-		}
-		if !listed("sim.converter.hold_interval_s") && !listed("sim.converter.hold_s") {
-			c.Converter.HoldIntervalS, c.Converter.HoldS = cs.HoldIntervalS, cs.HoldS
-		}
-	}
-	var lineHz float64
-	var lineFrom string
-	if v := b.Voltmeter; v != nil && v.DMM != nil {
-		if !listed("sim.voltmeter.ranges_v") {
-			c.Voltmeter.RangesV = append([]float64(nil), v.DMM.DC.RangesV...)
-		}
-		if !listed("sim.voltmeter.max_samples") {
-			c.Voltmeter.MaxSamples = v.DMM.MaxSamples
-		}
-		if !listed("sim.voltmeter.over_range_fraction") {
-			c.Voltmeter.OverRangeFraction = v.DMM.RangeHeadroom - 1
-		}
-		lineHz, lineFrom = v.DMM.LineHz, v.DMM.File
-	}
-	if d := b.DMM; d != nil && d.DMM != nil && d.DMM.AC != nil {
-		if !listed("sim.dmm.ranges_vrms") {
-			c.DMM.RangesVrms = append([]float64(nil), d.DMM.AC.RangesVrms...)
-		}
-		if !listed("sim.dmm.max_samples") {
-			c.DMM.MaxSamples = d.DMM.MaxSamples
-		}
-		if !listed("sim.dmm.over_range_fraction") {
-			c.DMM.OverRangeFraction = d.DMM.RangeHeadroom - 1
-		}
-		lineHz, lineFrom = d.DMM.LineHz, d.DMM.File
-	}
-	if lineHz > 0 {
-		if listed("sim.line_hz") && c.LineHz != lineHz {
-			p.add("sim.line_hz", c.LineHz, fmt.Sprintf("%g, the line_hz of %s", lineHz, lineFrom), "the simulator and the voltmeter profile disagree")
-		} else {
-			c.LineHz = lineHz
-		}
-	}
-	if err := c.Validate(); err != nil {
-		var ces []*sim.ConfigError
-		collectConfigErrors(err, &ces)
-		if len(ces) == 0 {
-			p.addErr("sim", nil, "", "bad [sim] table", err)
-		}
-		for _, ce := range ces {
-			p.addErr("sim."+ce.Key, ce.Value, ce.Allowed, "refused by the simulator", nil)
-		}
-	}
-}
-
-func collectConfigErrors(err error, out *[]*sim.ConfigError) {
-	if ce, ok := err.(*sim.ConfigError); ok {
-		*out = append(*out, ce)
-		return
-	}
-	if j, ok := err.(interface{ Unwrap() []error }); ok {
-		for _, e := range j.Unwrap() {
-			collectConfigErrors(e, out)
-		}
-		return
-	}
-	if e := errors.Unwrap(err); e != nil {
-		collectConfigErrors(e, out)
 	}
 }
 

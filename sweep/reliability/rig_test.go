@@ -60,7 +60,7 @@ func simBench(t *testing.T, scale float64) *profile.BenchFile {
 	if err != nil {
 		t.Fatal(err)
 	}
-	cfg.Sim.TimeScale, cfg.TimeScale = scale, scale
+	cfg.TimeScale = scale
 	return cfg
 }
 

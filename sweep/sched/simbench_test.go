@@ -29,7 +29,6 @@ func simConfig(t testing.TB, scale float64) *profile.BenchFile {
 		t.Fatal(err)
 	}
 	if scale > 0 {
-		cfg.Sim.TimeScale = scale
 		cfg.TimeScale = scale
 	}
 	return cfg
