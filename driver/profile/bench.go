@@ -55,7 +55,7 @@ type BenchFile struct {
 	// simulated bench (DUT, instruments) for "sim" addresses. This
 	// package only notes that it is there; the simulator decodes and
 	// checks it against the profiles (sim.FromBenchFile), with
-	// DecodeTable, Listed and KeyError.
+	// DecodeTable, Listed, Line and KeyError.
 	Sim map[string]any `toml:"sim"`
 
 	lines keyLines // where each key is written
@@ -213,7 +213,7 @@ func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel strin
 		name := resolve(rel)
 		d, err := read(name)
 		if err != nil {
-			errs = append(errs, &FieldError{File: file, Line: p.lines.line(key), Key: key, Value: formatValue(rel), Msg: "cannot read profile", Err: err})
+			errs = append(errs, &FieldError{File: file, Line: p.lines.line(key), Field: key, Value: formatValue(rel), Msg: "cannot read profile", Err: err})
 			return
 		}
 		k, err := kindOf(name, d)
@@ -222,7 +222,7 @@ func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel strin
 			return
 		}
 		if k != kind {
-			errs = append(errs, &FieldError{File: file, Line: p.lines.line(key), Key: key, Value: formatValue(rel),
+			errs = append(errs, &FieldError{File: file, Line: p.lines.line(key), Field: key, Value: formatValue(rel),
 				Msg: fmt.Sprintf("profile %s has kind %q", name, k), Allowed: fmt.Sprintf("a profile of kind %q", kind)})
 			return
 		}

@@ -59,9 +59,13 @@ func (b *BenchFile) Listed(key string) bool { return b.keyLines().has(key) }
 // closest written parent). value is quoted as the decoder quotes values
 // (strings in quotes, numbers in %g); nil leaves it out.
 func (b *BenchFile) KeyError(key string, value any, allowed, msg string, err error) *FieldError {
-	return &FieldError{File: b.File, Line: b.keyLines().line(key), Key: key, Value: formatValue(value),
+	return &FieldError{File: b.File, Line: b.keyLines().line(key), Field: key, Value: formatValue(value),
 		Allowed: allowed, Msg: msg, Err: err}
 }
+
+// Line returns the 1-based line where the bench file writes key, or its
+// closest written parent; 0 when unknown.
+func (b *BenchFile) Line(key string) int { return b.keyLines().line(key) }
 
 func (b *BenchFile) keyLines() keyLines {
 	if b.lines == nil {

@@ -95,7 +95,7 @@ func checkBad(t *testing.T, c badCase, text string, err error) {
 	}
 	var found *profile.FieldError
 	for _, fe := range fieldErrors(err) {
-		if fe.Key == c.key && fe.File == wantFile {
+		if fe.Field == c.key && fe.File == wantFile {
 			found = fe
 			break
 		}

@@ -6,6 +6,7 @@ import (
 	"math"
 
 	"rolloff/driver/profile"
+	"rolloff/internal/fielderr"
 )
 
 // FromBenchFile returns the simulated bench a bench file describes in its
@@ -39,13 +40,16 @@ func FromBenchFile(b *profile.BenchFile) (*Config, error) {
 	syncConverter(b, &c, add)
 	syncMeters(b, &c, add)
 	if err := c.Validate(); err != nil {
-		var ces []*ConfigError
-		collectConfigErrors(err, &ces)
+		ces := fielderr.All(err)
 		if len(ces) == 0 {
 			errs = append(errs, b.KeyError("sim", nil, "", "bad [sim] table", err))
 		}
 		for _, ce := range ces {
-			add("sim."+ce.Key, ce.Value, ce.Allowed, "refused by the simulator")
+			// The same problem, placed in the bench file.
+			fe := *ce
+			fe.Field = "sim." + ce.Field
+			fe.File, fe.Line = b.File, b.Line(fe.Field)
+			errs = append(errs, &fe)
 		}
 	}
 	if len(errs) > 0 {
@@ -130,21 +134,5 @@ func syncMeters(b *profile.BenchFile, c *Config, add func(key string, value any,
 		} else {
 			c.LineHz = lineHz
 		}
-	}
-}
-
-func collectConfigErrors(err error, out *[]*ConfigError) {
-	if ce, ok := err.(*ConfigError); ok {
-		*out = append(*out, ce)
-		return
-	}
-	if j, ok := err.(interface{ Unwrap() []error }); ok {
-		for _, e := range j.Unwrap() {
-			collectConfigErrors(e, out)
-		}
-		return
-	}
-	if e := errors.Unwrap(err); e != nil {
-		collectConfigErrors(e, out)
 	}
 }
