@@ -217,7 +217,7 @@ func (g *bridge) SetState(ctx context.Context, id string, s event.State, msg str
 		}
 	}
 	err := r.SetState(s, msg)
-	if s.Final() || s == event.Interrupted {
+	if s.Ended() {
 		// Nothing will run it in this daemon: let the lock go, so that
 		// a later daemon (or the CLI) may resume it.
 		if s.Final() {
@@ -363,9 +363,9 @@ func (g *bridge) Overlay(ctx context.Context, w io.Writer, format string, ids []
 		if len(ss) != 2 {
 			return badRequest("diff", "a difference plot takes exactly two runs (the second minus the first), not %d", len(ss))
 		}
-		err = export.DiffPlot(w, format, ss[0], ss[1])
+		err = export.DiffPlot(w, format, export.PlotOptions{}, ss[0], ss[1])
 	} else {
-		err = export.Overlay(w, format, ss...)
+		err = export.Overlay(w, format, export.PlotOptions{}, ss...)
 	}
 	if err != nil {
 		return &apiError{status: 422, field: "runs", msg: fmt.Sprintf("cannot plot these runs: %v", err)}

@@ -83,9 +83,9 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		if !(*scale >= 1 && *scale <= 1e6) {
 			return &exitError{code: 2, err: fmt.Errorf("--time-scale %g: want 1 to 1e6", *scale)}
 		}
-		cfg.TimeScale, cfg.Sim.TimeScale = *scale, *scale
+		cfg.TimeScale = *scale
 	case !*noServe:
-		cfg.TimeScale, cfg.Sim.TimeScale = demoServeTimeScale, demoServeTimeScale
+		cfg.TimeScale = demoServeTimeScale
 	}
 	b, err := bench.Open(ctx, cfg, env.log)
 	if err != nil {

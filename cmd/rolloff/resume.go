@@ -64,7 +64,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return err
 	}
-	var cfg *profile.Bench
+	var cfg *profile.BenchFile
 	if *benchPath != "" {
 		cfg, err = bench.Load(*benchPath)
 	} else {
@@ -91,7 +91,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 // storedBench loads the run directory's bench.toml. Its profiles are
 // looked for beside it, then among the shipped profiles (the demo
 // bench's are embedded).
-func storedBench(dir string) (*profile.Bench, error) {
+func storedBench(dir string) (*profile.BenchFile, error) {
 	name := filepath.Join(dir, store.FileBench)
 	data, err := os.ReadFile(name)
 	if err != nil {

@@ -30,6 +30,11 @@ const (
 // Final reports whether s is an end state (done, aborted or failed).
 func (s State) Final() bool { return s == Done || s == Aborted || s == Failed }
 
+// Ended reports whether no sweep is running or due in state s: a final
+// state, or interrupted (left unfinished by a crash or a shutdown, and
+// resumable).
+func (s State) Ended() bool { return s.Final() || s == Interrupted }
+
 // Type is an event's kind, the "type" field of every live message.
 type Type string
 

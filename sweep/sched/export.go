@@ -13,5 +13,9 @@ func (s *sweeper) export(pts []point.Point, res *analysis.Result) error {
 	if !ok || d.Dir() == "" {
 		return nil
 	}
-	return export.WriteAll(d.Dir(), pts, res)
+	w, ok := d.(export.FileWriter)
+	if !ok {
+		return nil
+	}
+	return export.WriteAll(w, pts, res)
 }

@@ -22,14 +22,13 @@ import (
 
 // simConfig returns the demo simulated bench's configuration with the
 // given time scale (model seconds per wall second).
-func simConfig(t testing.TB, scale float64) *profile.Bench {
+func simConfig(t testing.TB, scale float64) *profile.BenchFile {
 	t.Helper()
 	cfg, err := configs.LoadBench(configs.SimBench)
 	if err != nil {
 		t.Fatal(err)
 	}
 	if scale > 0 {
-		cfg.Sim.TimeScale = scale
 		cfg.TimeScale = scale
 	}
 	return cfg
@@ -60,7 +59,7 @@ type simRun struct {
 }
 
 // newRun opens a bench and a run in a fresh store.
-func newRun(t testing.TB, cfg *profile.Bench, p *plan.Plan, dir string) (*bench.Bench, *store.Run) {
+func newRun(t testing.TB, cfg *profile.BenchFile, p *plan.Plan, dir string) (*bench.Bench, *store.Run) {
 	t.Helper()
 	b, err := bench.Open(context.Background(), cfg, zerolog.Nop())
 	if err != nil {
@@ -81,7 +80,7 @@ func newRun(t testing.TB, cfg *profile.Bench, p *plan.Plan, dir string) (*bench.
 }
 
 // sweepOn runs p on a fresh simulated bench of cfg and waits for it.
-func sweepOn(t testing.TB, ctx context.Context, cfg *profile.Bench, p *plan.Plan, opts sched.Opts, hook func(*sched.Run, *bench.Bench)) simRun {
+func sweepOn(t testing.TB, ctx context.Context, cfg *profile.BenchFile, p *plan.Plan, opts sched.Opts, hook func(*sched.Run, *bench.Bench)) simRun {
 	t.Helper()
 	b, run := newRun(t, cfg, p, t.TempDir())
 	defer b.Close()
@@ -120,7 +119,7 @@ func sweepRun(t testing.TB, ctx context.Context, b *bench.Bench, run *store.Run,
 // model picks) and the fixed worst-case delay sweep (the dwell of the
 // worst step of the sweep on the slowest range at every point, plus the
 // same readings).
-func figures(pts []point.Point, p *plan.Plan, cfg *profile.Bench) (boundS, fixedS float64) {
+func figures(pts []point.Point, p *plan.Plan, cfg *profile.BenchFile) (boundS, fixedS float64) {
 	ranges := cfg.Converter.Spec.DriverRanges()
 	m := onbench.Meter(cfg)
 	tol := p.Settle.Tolerance
