@@ -38,13 +38,6 @@ const (
 	vinReadings = 6
 )
 
-// What a range change does to the converter's averaged state.
-const (
-	rangeUnknown    = iota
-	rangeByInput    // the state is the input's mean square: continuous in volts
-	rangeByFraction // the state is a fraction of full scale: it jumps by the range ratio
-)
-
 // sweeper is the loop's private state; only the run goroutine touches it.
 type sweeper struct {
 	r     *Run
@@ -60,20 +53,8 @@ type sweeper struct {
 	freqHz     float64
 	freqSet    bool
 
-	// The converter model: the input mean square convMS (Vrms²) reached
-	// at convT (physical seconds) towards convTarget.
-	convMS     float64
-	convTarget float64
-	convT      float64
-	convKnown  bool
-	// convFS is the input mean square expressed on the previous range
-	// before a range change; the worse of the two assumptions about the
-	// state's continuity is taken.
-	convAltMS float64
-	convAlt   bool
-	// rangeModel is what a range change does to the converter's state,
-	// learnt from the first reading after the first change.
-	rangeModel int
+	// conv is the converter model.
+	conv convModel
 	// noise is the readings' relative scatter (per reading), from the
 	// last points' Type A deviations.
 	noise []float64
@@ -414,7 +395,7 @@ func (s *sweeper) prepare(ctx context.Context) error {
 		return fmt.Errorf("sched: prepare: %w", err)
 	}
 	s.outputOn = false
-	s.convKnown, s.convMS, s.convTarget, s.convT = true, 0, 0, r.phys()
+	s.conv.rest(r.phys(), 0)
 	if err := s.setAmplitude(ctx, s.plan.Level.Vrms); err != nil {
 		return fmt.Errorf("sched: prepare: %w", err)
 	}
@@ -498,27 +479,6 @@ func (s *sweeper) lastPoint() *point.Point {
 	return &s.pts[len(s.pts)-1]
 }
 
-// convAt returns the converter model's input mean square at physical time t.
-func (s *sweeper) convAt(t float64) float64 {
-	tau := s.tau()
-	if tau <= 0 {
-		return s.convTarget
-	}
-	return s.convTarget + (s.convMS-s.convTarget)*math.Exp(-(t-s.convT)/tau)
-}
-
-// convStep records that the converter's input steps to targetMS at t.
-func (s *sweeper) convStep(t, targetMS float64) {
-	if s.convAlt {
-		if tau := s.tau(); tau > 0 {
-			s.convAltMS = s.convTarget + (s.convAltMS-s.convTarget)*math.Exp(-(t-s.convT)/tau)
-		}
-	}
-	s.convMS = s.convAt(t)
-	s.convTarget = targetMS
-	s.convT = t
-}
-
 // setOutput switches the generator output, keeping the converter model.
 func (s *sweeper) setOutput(ctx context.Context, on bool, expectVrms float64) error {
 	if s.outputOn == on {
@@ -537,9 +497,9 @@ func (s *sweeper) setOutput(ctx context.Context, on bool, expectVrms float64) er
 	}
 	s.outputOn = on
 	if on {
-		s.convStep(s.r.phys(), expectVrms*expectVrms)
+		s.conv.step(s.r.phys(), s.tau(), expectVrms*expectVrms)
 	} else {
-		s.convStep(s.r.phys(), 0)
+		s.conv.step(s.r.phys(), s.tau(), 0)
 	}
 	return nil
 }
@@ -703,10 +663,10 @@ func (s *sweeper) dwellFor(t, v1 float64) float64 {
 	tau := s.tau()
 	d := 0.0
 	if tau > 0 && v1 > 0 {
-		y0 := s.convAt(t)
+		y0 := s.conv.at(t, tau)
 		d = settle.DwellS(tau, math.Sqrt(y0), v1, tol)
-		if s.convAlt {
-			d = math.Max(d, settle.DwellS(tau, math.Sqrt(math.Max(0, s.convAltMS)), v1, tol))
+		if s.conv.altOn {
+			d = math.Max(d, settle.DwellS(tau, math.Sqrt(math.Max(0, s.conv.alt)), v1, tol))
 		}
 	}
 	return d + s.plan.Settle.MinDwellS
@@ -843,12 +803,12 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 	}
 	tStep := r.phys()
 	if ok {
-		s.convStep(tStep, v1*v1)
+		s.conv.step(tStep, s.tau(), v1*v1)
 	}
 	// The dwell: from the converter's state before the step.
-	y0 := s.convMS
-	alt := s.convAlt
-	y0alt := s.convAltMS
+	y0 := s.conv.avg.Y
+	alt := s.conv.altOn
+	y0alt := s.conv.alt
 	var dwell float64
 	weak := ok && s.gain.Len() < 2 && predGain <= 0
 	if ok {
@@ -1049,15 +1009,15 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 			dA, dB := math.Abs(last.Vrms-rA), math.Abs(last.Vrms-rB)
 			switch {
 			case dA < dB/4:
-				s.rangeModel = rangeByInput
+				s.conv.rangeModel = rangeByInput
 				r.logEvent("range changes keep the converter's mean square in volts")
 			case dB < dA/4:
-				s.rangeModel = rangeByFraction
+				s.conv.rangeModel = rangeByFraction
 				r.logEvent("range changes keep the converter's state as a fraction of full scale")
 				y0 = y0alt
 			}
-			if s.rangeModel != rangeUnknown {
-				alt, s.convAlt = false, false
+			if s.conv.rangeModel != rangeUnknown {
+				alt, s.conv.altOn = false, false
 				if need := settle.DwellS(tau, math.Sqrt(y0), v1, tol) + s.plan.Settle.MinDwellS; need > ts {
 					crit.NotBeforeS = need
 				} else {
@@ -1208,7 +1168,7 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 					return pt, false, err
 				}
 				if changed {
-					s.convMS, s.convT, s.convTarget = mean*mean, r.phys(), mean*mean
+					s.conv.avg = settle.RestAt(r.phys(), mean*mean)
 					return pt, true, nil
 				}
 			}
@@ -1233,8 +1193,8 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 	}
 	// The converter model now starts from what was measured.
 	if mean > 0 && s.outputOn {
-		s.convMS, s.convTarget, s.convT = mean*mean, mean*mean, r.phys()
-		s.convAlt = false
+		s.conv.rest(r.phys(), mean*mean)
+		s.conv.altOn = false
 		if !pt.Excluded() {
 			if ok && v1 > 0 {
 				h := &s.predErrs[0]

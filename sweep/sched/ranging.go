@@ -38,23 +38,8 @@ func (s *sweeper) switchRange(ctx context.Context, i int, why string) error {
 // noteRange records a range change in the model and the status.
 func (s *sweeper) noteRange(i int) {
 	if s.rangeKnown && s.rangeIdx != i {
-		// If the converter's state is continuous in fraction of full
-		// scale rather than in input volts, it now stands at the old
-		// fraction on the new range.
 		rs := s.ranges()
-		k := rs[i].FullScaleVrms / rs[s.rangeIdx].FullScaleVrms
-		t := s.r.phys()
-		s.convMS = s.convAt(t)
-		s.convT = t
-		s.convAltMS = s.convMS * k * k
-		switch s.rangeModel {
-		case rangeByInput:
-			s.convAlt = false
-		case rangeByFraction:
-			s.convMS, s.convTarget, s.convAlt = s.convAltMS, s.convAltMS, false
-		default:
-			s.convAlt = true
-		}
+		s.conv.rangeChanged(s.r.phys(), s.tau(), rs[i].FullScaleVrms/rs[s.rangeIdx].FullScaleVrms)
 	}
 	s.rangeIdx, s.rangeKnown = i, true
 	s.r.mu.Lock()
@@ -190,7 +175,7 @@ func (s *sweeper) guard(ctx context.Context, vrms, gainEst, freqHz float64, why 
 			return false, err
 		}
 		if s.outputOn {
-			s.convStep(s.r.phys(), gainEst*gainEst*a*a)
+			s.conv.step(s.r.phys(), s.tau(), gainEst*gainEst*a*a)
 		}
 		s.r.logEvent(fmt.Sprintf("level %.4g → %.4g Vrms (%s)", old, a, why))
 		return true, nil
