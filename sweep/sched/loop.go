@@ -45,44 +45,11 @@ type sweeper struct {
 	plan  *plan.Plan
 	ranks []int // range indices by ascending full scale
 
-	rangeIdx   int
-	rangeKnown bool
-	ampVrms    float64
-	ampSet     bool
-	outputOn   bool
-	freqHz     float64
-	freqSet    bool
-
-	// conv is the converter model.
-	conv convModel
-	// noise is the readings' relative scatter (per reading), from the
-	// last points' Type A deviations.
-	noise []float64
-
-	// The hold guard: since tOK (physical s) the output has stayed within
-	// the tolerance of vRef (Vrms).
-	tOK, vRef float64
-	// A hold began in [holdLo, holdHi] (physical s), when holdKnown.
-	holdLo, holdHi float64
-	holdKnown      bool
-	refining       bool // the point's prediction is the refinement's interpolation
-
-	gain      settle.Predictor // gain vs frequency
-	scoutGain float64          // the first point's gain from its first reading
-	// predErrs are the last points' relative prediction errors, of the
-	// slope prediction [0] and of the refinement's interpolation [1].
-	predErrs [2][]float64
-	reading  settle.Reading
-	dcCfg    driver.DCConfig
-	acCfg    driver.ACConfig
-	cfgOK    bool
-
-	seq      int
-	pts      []point.Point
-	nPlan    int
-	freqs    []plan.Freq
-	modelSum float64 // model estimate of the points measured so far, physical s
-	actSum   float64 // their actual duration, physical s
+	bench benchState   // the instruments' settings
+	conv  convModel    // the converter's averaged state
+	hold  holdSchedule // the converter's output hold as seen so far
+	pred  predictor    // the gain predictor and its error history
+	prog  progress     // the points measured and their timing
 }
 
 func (r *Run) main(ctx context.Context) {
@@ -128,53 +95,6 @@ func (r *Run) main(ctx context.Context) {
 	r.mu.Unlock()
 	r.cancel(nil)
 	close(r.done)
-}
-
-// halt puts the generator in its inert state with its own time-out. When
-// that fails (the generator is unreachable), a goroutine keeps trying with
-// backoff until the output is off, the generator is closed, or
-// haltRetryFor has passed: a generator that comes back after an outage
-// must not go on driving the DUT.
-func (r *Run) halt() {
-	err := r.haltOnce()
-	if err == nil {
-		return
-	}
-	r.log.Error().Err(err).Msg("generator halt")
-	r.emit(event.Event{Type: event.TypeLog, Message: "generator halt failed: " + err.Error() + "; retrying until the output is off"})
-	go r.haltRetry()
-}
-
-// haltOnce tries Halt once, bounded by haltTimeout.
-func (r *Run) haltOnce() error {
-	done := make(chan error, 1)
-	go func() { done <- r.inst.Generator.Halt() }()
-	select {
-	case err := <-done:
-		return err
-	case <-time.After(haltTimeout):
-		return fmt.Errorf("sched: generator halt timed out after %v: %w", haltTimeout, driver.ErrTimeout)
-	}
-}
-
-// haltRetry retries a failed halt with backoff (wall time).
-func (r *Run) haltRetry() {
-	deadline := time.Now().Add(haltRetryFor)
-	wait := 250 * time.Millisecond
-	for tries := 2; time.Now().Before(deadline); tries++ {
-		time.Sleep(wait)
-		err := r.haltOnce()
-		if err == nil {
-			r.log.Warn().Int("tries", tries).Msg("generator output off after a failed halt")
-			return
-		}
-		if errors.Is(err, driver.ErrClosed) {
-			r.log.Warn().Err(err).Msg("generator closed before its output could be switched off")
-			return
-		}
-		wait = min(2*wait, 2*time.Second)
-	}
-	r.log.Error().Dur("for", haltRetryFor).Msg("gave up switching the generator output off: check it by hand")
 }
 
 // phys returns the physical seconds since the run started.
@@ -259,42 +179,6 @@ func (r *Run) try(ctx context.Context, what string, f func(ctx context.Context) 
 	}
 }
 
-func (s *sweeper) ranges() []driver.Range { return s.inst.Converter.Ranges() }
-
-func (s *sweeper) tau() float64 {
-	if s.inst.Converter == nil || !s.rangeKnown {
-		return 0
-	}
-	return s.ranges()[s.rangeIdx].TimeConstantS
-}
-
-func (s *sweeper) rangeName(i int) string {
-	if s.inst.Converter == nil || i < 0 || i >= len(s.ranges()) {
-		return ""
-	}
-	return s.ranges()[i].Name
-}
-
-// ampBounds returns the amplitude window of the level strategy.
-func (s *sweeper) ampBounds() (lo, hi float64) {
-	lv := s.plan.Level
-	lo, hi = lv.MinVrms, lv.MaxVrms
-	if hi <= 0 {
-		hi = lv.Vrms
-	}
-	if lo <= 0 {
-		lo = lv.Vrms
-	}
-	lim := s.inst.Limits
-	if lim.MaxVrms > 0 {
-		hi = math.Min(hi, lim.MaxVrms)
-	}
-	if lim.MinVrms > 0 {
-		lo = math.Max(lo, lim.MinVrms)
-	}
-	return lo, hi
-}
-
 // run is the whole sweep: prepare, the plan's points, the refinement and
 // the finish. It returns nil when the run is done.
 func (s *sweeper) run(ctx context.Context) error {
@@ -306,7 +190,7 @@ func (s *sweeper) run(ctx context.Context) error {
 	if err != nil {
 		return fmt.Errorf("sched: plan frequencies: %w", err)
 	}
-	s.freqs, s.nPlan = freqs, len(freqs)
+	s.prog.freqs, s.prog.nPlan = freqs, len(freqs)
 	measured := map[int]bool{}
 	if r.opts.Resume {
 		pts, err := r.rec.Points()
@@ -314,23 +198,23 @@ func (s *sweeper) run(ctx context.Context) error {
 			return fmt.Errorf("sched: resume: %w", err)
 		}
 		for _, p := range pts {
-			if p.Index < s.nPlan && math.Abs(p.FreqHz-freqs[p.Index].Hz) > 1e-9*freqs[p.Index].Hz {
+			if p.Index < s.prog.nPlan && math.Abs(p.FreqHz-freqs[p.Index].Hz) > 1e-9*freqs[p.Index].Hz {
 				return fmt.Errorf("sched: resume: stored point %d at %g Hz is not plan point %d (%g Hz): not the same plan", p.Seq, p.FreqHz, p.Index, freqs[p.Index].Hz)
 			}
 			measured[p.Index] = true
-			s.seq = max(s.seq, p.Seq+1)
+			s.prog.seq = max(s.prog.seq, p.Seq+1)
 		}
-		s.pts = pts
+		s.prog.pts = pts
 		if len(pts) > 0 {
 			r.logEvent(fmt.Sprintf("resuming after %d stored points", len(pts)))
 		}
 	}
 	r.mu.Lock()
-	r.status.Total = s.nPlan + s.refinedCount()
-	r.status.Done = len(s.pts)
+	r.status.Total = s.prog.nPlan + s.refinedCount()
+	r.status.Done = len(s.prog.pts)
 	r.mu.Unlock()
 	for _, p := range s.sortedPoints() {
-		s.gain.Add(p.FreqHz, p.VoutVrms/p.VinVrms)
+		s.pred.gain.Add(p.FreqHz, p.VoutVrms/p.VinVrms)
 	}
 	if err := s.prepare(ctx); err != nil {
 		return err
@@ -394,7 +278,7 @@ func (s *sweeper) prepare(ctx context.Context) error {
 	if err := r.try(ctx, "generator output off", func(ctx context.Context) error { return g.SetOutput(ctx, false) }); err != nil {
 		return fmt.Errorf("sched: prepare: %w", err)
 	}
-	s.outputOn = false
+	s.bench.outputOn = false
 	s.conv.rest(r.phys(), 0)
 	if err := s.setAmplitude(ctx, s.plan.Level.Vrms); err != nil {
 		return fmt.Errorf("sched: prepare: %w", err)
@@ -430,9 +314,9 @@ func (s *sweeper) prepare(ctx context.Context) error {
 	case plan.RangeOperator:
 		switch {
 		case start >= 0 && r.opts.RangeKnown && r.opts.CurrentRange == start:
-			s.rangeIdx, s.rangeKnown = start, true
+			s.bench.rangeIdx, s.bench.rangeKnown = start, true
 		case start < 0 && r.opts.RangeKnown:
-			s.rangeIdx, s.rangeKnown = r.opts.CurrentRange, true
+			s.bench.rangeIdx, s.bench.rangeKnown = r.opts.CurrentRange, true
 		default:
 			if start < 0 {
 				start = s.ranks[len(s.ranks)-1]
@@ -453,73 +337,30 @@ func (s *sweeper) prepare(ctx context.Context) error {
 				return err
 			}
 		case start >= 0:
-			s.rangeIdx = start
+			s.bench.rangeIdx = start
 		case r.opts.RangeKnown:
-			s.rangeIdx = r.opts.CurrentRange
+			s.bench.rangeIdx = r.opts.CurrentRange
 		case last != nil:
-			s.rangeIdx = last.RangeIndex
+			s.bench.rangeIdx = last.RangeIndex
 		default:
 			return fmt.Errorf("sched: plan ranging.start is empty and the converter's range is unknown: name the range for strategy %q", s.plan.Ranging.Strategy)
 		}
-		if s.rangeIdx < 0 || s.rangeIdx >= len(s.ranges()) {
-			return fmt.Errorf("sched: converter range %d: want 0..%d", s.rangeIdx, len(s.ranges())-1)
+		if s.bench.rangeIdx < 0 || s.bench.rangeIdx >= len(s.ranges()) {
+			return fmt.Errorf("sched: converter range %d: want 0..%d", s.bench.rangeIdx, len(s.ranges())-1)
 		}
-		s.rangeKnown = true
+		s.bench.rangeKnown = true
 	}
 	r.mu.Lock()
-	r.status.RangeIndex, r.status.Range = s.rangeIdx, s.rangeName(s.rangeIdx)
+	r.status.RangeIndex, r.status.Range = s.bench.rangeIdx, s.rangeName(s.bench.rangeIdx)
 	r.mu.Unlock()
 	return nil
 }
 
 func (s *sweeper) lastPoint() *point.Point {
-	if len(s.pts) == 0 {
+	if len(s.prog.pts) == 0 {
 		return nil
 	}
-	return &s.pts[len(s.pts)-1]
-}
-
-// setOutput switches the generator output, keeping the converter model.
-func (s *sweeper) setOutput(ctx context.Context, on bool, expectVrms float64) error {
-	if s.outputOn == on {
-		return nil
-	}
-	g := s.inst.Generator
-	if on && !s.ampSet {
-		return errors.New("sched: output on with the amplitude unset")
-	}
-	what := "generator output off"
-	if on {
-		what = "generator output on"
-	}
-	if err := s.r.try(ctx, what, func(ctx context.Context) error { return g.SetOutput(ctx, on) }); err != nil {
-		return err
-	}
-	s.outputOn = on
-	if on {
-		s.conv.step(s.r.phys(), s.tau(), expectVrms*expectVrms)
-	} else {
-		s.conv.step(s.r.phys(), s.tau(), 0)
-	}
-	return nil
-}
-
-func (s *sweeper) setAmplitude(ctx context.Context, vrms float64) error {
-	if s.ampSet && s.ampVrms == vrms {
-		return nil
-	}
-	if lim := s.inst.Limits; lim.MaxVrms > 0 && vrms > lim.MaxVrms*(1+1e-12) {
-		return fmt.Errorf("sched: amplitude %g V above the bench limit %g V", vrms, lim.MaxVrms)
-	}
-	g := s.inst.Generator
-	if err := s.r.try(ctx, "generator amplitude", func(ctx context.Context) error { return g.SetAmplitude(ctx, vrms) }); err != nil {
-		return err
-	}
-	s.ampVrms, s.ampSet = vrms, true
-	s.r.mu.Lock()
-	s.r.status.VinVrms = vrms
-	s.r.mu.Unlock()
-	return nil
+	return &s.prog.pts[len(s.prog.pts)-1]
 }
 
 // pause handles a pause request: output off, wait for Resume.
@@ -546,115 +387,6 @@ func (s *sweeper) pause(ctx context.Context) error {
 	return nil
 }
 
-// readOnce takes one (possibly burst-averaged) reading: the DC output
-// volts (converter) or Vrms (AC voltmeter).
-func (s *sweeper) readOnce(ctx context.Context) (float64, error) {
-	n := max(1, s.reading.Average)
-	r := s.r
-	if s.inst.Converter == nil || s.inst.DCVoltmeter == nil {
-		ac := s.inst.ACVoltmeter
-		var sum float64
-		for k := 0; k < n; k++ {
-			var v float64
-			err := r.try(ctx, "AC reading", func(ctx context.Context) (err error) { v, err = ac.ReadAC(ctx); return })
-			if err != nil {
-				return 0, err
-			}
-			sum += v
-		}
-		return sum / float64(n), nil
-	}
-	dvm := s.inst.DCVoltmeter
-	if br, ok := dvm.(driver.BurstReader); ok && n > 1 {
-		var vs []float64
-		err := r.try(ctx, "DC burst", func(ctx context.Context) (err error) { vs, err = br.ReadBurst(ctx, n); return })
-		if err != nil {
-			return 0, err
-		}
-		if len(vs) == 0 {
-			return 0, fmt.Errorf("sched: empty burst: %w", driver.ErrMalformed)
-		}
-		var sum float64
-		for _, v := range vs {
-			sum += v
-		}
-		return sum / float64(len(vs)), nil
-	}
-	var sum float64
-	for k := 0; k < n; k++ {
-		var v float64
-		err := r.try(ctx, "DC reading", func(ctx context.Context) (err error) { v, err = dvm.ReadDC(ctx); return })
-		if err != nil {
-			return 0, err
-		}
-		sum += v
-	}
-	return sum / float64(n), nil
-}
-
-func (s *sweeper) meter() settle.Meter {
-	m := s.inst.Meter
-	if m.Validate() != nil {
-		line := s.inst.LineHz
-		if line <= 0 {
-			line = 50
-		}
-		m = settle.NPLCMeter([]float64{1, 10}, line, 0)
-	}
-	return m
-}
-
-// configure chooses the aperture for freqHz and configures the voltmeter
-// when it changes.
-func (s *sweeper) configure(ctx context.Context, freqHz float64) error {
-	m := s.meter()
-	tau := s.tau()
-	rd, err := settle.ChooseAperture(freqHz, tau, rippleShare*s.plan.Settle.Tolerance, m)
-	if err != nil && !errors.Is(err, settle.ErrNoAperture) {
-		return err
-	}
-	ap := driver.Aperture{Seconds: rd.ApertureS}
-	if m.LineHz > 0 {
-		ap = driver.Aperture{NPLC: math.Round(rd.ApertureS*m.LineHz*1e9) / 1e9}
-	}
-	s.reading = rd
-	if s.inst.Converter != nil && s.inst.DCVoltmeter != nil {
-		rangeV := s.inst.DCRangeV
-		if rangeV <= 0 {
-			w := s.inst.Converter.Window()
-			rangeV = w.DCFullScaleV * math.Max(1, w.OverFraction)
-		}
-		cfg := driver.DCConfig{RangeV: rangeV, Aperture: ap}
-		if s.cfgOK && cfg == s.dcCfg {
-			return nil
-		}
-		dvm := s.inst.DCVoltmeter
-		if err := s.r.try(ctx, "voltmeter configure", func(ctx context.Context) error { return dvm.ConfigureDC(ctx, cfg) }); err != nil {
-			return err
-		}
-		s.dcCfg, s.cfgOK = cfg, true
-		return nil
-	}
-	cfg := driver.ACConfig{Aperture: ap}
-	if s.cfgOK && cfg == s.acCfg {
-		return nil
-	}
-	ac := s.inst.ACVoltmeter
-	if err := s.r.try(ctx, "voltmeter configure", func(ctx context.Context) error { return ac.ConfigureAC(ctx, cfg) }); err != nil {
-		return err
-	}
-	s.acCfg, s.cfgOK = cfg, true
-	return nil
-}
-
-// scale turns a reading into Vrms and a window status on the current range.
-func (s *sweeper) scaleReading(v float64) (driver.ConverterReading, error) {
-	if s.inst.Converter == nil || s.inst.DCVoltmeter == nil {
-		return driver.ConverterReading{Vrms: v, Status: driver.InSpec}, nil
-	}
-	return s.inst.Converter.Scale(s.rangeIdx, v)
-}
-
 // dwellFor returns the model dwell, physical seconds, for the converter to
 // settle from its present state to v1 Vrms (both continuity assumptions
 // after a range change), plus the plan's minimum dwell.
@@ -673,36 +405,11 @@ func (s *sweeper) dwellFor(t, v1 float64) float64 {
 }
 
 // trendNoise returns the offset from the final value that the readings'
-// noise can fake in the converge test's trend check: τ·σ·√2 over the
-// window's span (∞ while the noise is not known yet).
+// noise can fake in the converge test's trend check (see
+// predictor.trendNoise).
 func (s *sweeper) trendNoise() float64 {
-	if len(s.noise) == 0 {
-		return math.Inf(1)
-	}
-	var sig float64
-	for _, x := range s.noise {
-		sig = math.Max(sig, x)
-	}
 	n := max(2, s.plan.Settle.Readings)
-	span := float64(n-1) * s.reading.TimeS(s.meter())
-	if span <= 0 {
-		return math.Inf(1)
-	}
-	return s.tau() * sig * math.Sqrt2 / span
-}
-
-// predErr returns the largest relative prediction error of the last
-// points, of the refinement's interpolation or of the slope prediction.
-func (s *sweeper) predErr(interp bool) float64 {
-	h := s.predErrs[0]
-	if interp {
-		h = s.predErrs[1]
-	}
-	var e float64
-	for _, x := range h {
-		e = math.Max(e, x)
-	}
-	return e
+	return s.pred.trendNoise(s.tau(), float64(n-1)*s.bench.reading.TimeS(s.meter()))
 }
 
 // measure measures one point (plan index idx, or a refined point) and
@@ -743,61 +450,18 @@ func (s *sweeper) measure(ctx context.Context, idx int, freqHz float64, refined 
 		if err := r.j.Err(); err != nil {
 			return err
 		}
-		pt.Seq = s.seq
+		pt.Seq = s.prog.seq
 		r.j.point(pt)
-		s.seq++
-		s.pts = append(s.pts, pt)
-		s.actSum += r.phys() - tStart
-		s.modelSum += s.modelPointS(freqHz)
+		s.prog.seq++
+		s.prog.pts = append(s.prog.pts, pt)
+		s.prog.actSum += r.phys() - tStart
+		s.prog.modelSum += s.modelPointS(freqHz)
 		if len(pt.Flags) > 0 && !(len(pt.Flags) == 1 && pt.Has(point.FlagRefined)) {
 			r.logEvent(fmt.Sprintf("point %d at %s flagged %v", pt.Seq, analysis.FormatHz(freqHz, 4), pt.Flags))
 		}
-		s.progress()
+		s.publishProgress()
 		return nil
 	}
-}
-
-// modelPointS is the model's estimate of a passband point's time: the
-// readings alone (used to scale the ETA).
-func (s *sweeper) modelPointS(freqHz float64) float64 {
-	m := s.meter()
-	rd, _ := settle.ChooseAperture(freqHz, s.tau(), rippleShare*s.plan.Settle.Tolerance, m)
-	n := max(2, s.plan.Settle.Readings)
-	return float64(n)*rd.TimeS(m) + s.plan.Settle.MinDwellS
-}
-
-// progress publishes the run's progress.
-func (s *sweeper) progress() {
-	r := s.r
-	done := len(s.pts)
-	total := s.nPlan + s.refinedCount()
-	remaining := 0.0
-	measured := map[int]bool{}
-	for _, p := range s.pts {
-		measured[p.Index] = true
-	}
-	for i, f := range s.freqs {
-		if !measured[i] {
-			remaining += s.modelPointS(f.Hz)
-		}
-	}
-	ratio := 1.0
-	if s.modelSum > 0 {
-		ratio = s.actSum / s.modelSum
-	}
-	remaining *= ratio
-	if n := s.refineExpected() - s.refinedCount(); n > 0 && len(s.pts) > 0 {
-		// The refinement still to come, at the mean measured point time
-		// (its points sit on the skirts, where the dwells are).
-		remaining += float64(n) * s.actSum / float64(len(s.pts))
-	}
-	eta := remaining / r.scale()
-	r.mu.Lock()
-	r.status.Done, r.status.Total, r.status.ETASec = done, total, eta
-	elapsed := r.clock.Now().Sub(r.t0).Seconds()
-	freq := r.status.FreqHz
-	r.mu.Unlock()
-	r.emit(event.Event{Type: event.TypeProgress, Progress: &event.Progress{Done: done, Total: total, FreqHz: freq, ETASec: eta, Elapsed: elapsed}})
 }
 
 // readVin reads the DUT input on the bench's second channel until two

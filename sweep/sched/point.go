@@ -107,20 +107,20 @@ func (p *pointRun) predict(ctx context.Context) error {
 	s := p.s
 	p.gEst, p.predicted = p.predGain, p.predGain > 0
 	if !p.predicted {
-		p.gEst, p.predicted = s.gain.Predict(p.freqHz)
+		p.gEst, p.predicted = s.pred.gain.Predict(p.freqHz)
 	}
-	if !p.predicted && s.scoutGain > 0 {
-		p.gEst, p.predicted = s.scoutGain, true // from this point's first reading
+	if !p.predicted && s.pred.scoutGain > 0 {
+		p.gEst, p.predicted = s.pred.scoutGain, true // from this point's first reading
 	}
 	// An operator is asked for a more sensitive range only on a measured
 	// reading, never on a prediction alone: a prediction that overshoots
 	// (entering a roll-off) would make them turn the switch twice at one
 	// frequency. A less sensitive range is asked for on the prediction,
 	// so that the converter is never driven over range.
-	downOnPrediction := p.predicted && s.rangeKnown && s.inst.Converter != nil &&
-		s.plan.Ranging.Strategy == plan.RangeOperator && s.pickRange(p.gEst*s.ampVrms) < s.rangeIdx
-	if p.predicted && p.attempt == 0 && s.rangeKnown && !downOnPrediction {
-		v := p.gEst * s.ampVrms
+	downOnPrediction := p.predicted && s.bench.rangeKnown && s.inst.Converter != nil &&
+		s.plan.Ranging.Strategy == plan.RangeOperator && s.pickRange(p.gEst*s.bench.ampVrms) < s.bench.rangeIdx
+	if p.predicted && p.attempt == 0 && s.bench.rangeKnown && !downOnPrediction {
+		v := p.gEst * s.bench.ampVrms
 		if _, err := s.guard(ctx, v, p.gEst, p.freqHz, fmt.Sprintf("predicted %.4g Vrms at %s", v, analysis.FormatHz(p.freqHz, 4))); err != nil {
 			return err
 		}
@@ -132,18 +132,18 @@ func (p *pointRun) predict(ctx context.Context) error {
 // on: the converter's input steps at tStep.
 func (p *pointRun) step(ctx context.Context) error {
 	s, r := p.s, p.r
-	if !s.freqSet || s.freqHz != p.freqHz {
+	if !s.bench.freqSet || s.bench.freqHz != p.freqHz {
 		g := s.inst.Generator
 		if err := r.try(ctx, "generator frequency", func(ctx context.Context) error { return g.SetFrequency(ctx, p.freqHz) }); err != nil {
 			return err
 		}
-		s.freqHz, s.freqSet = p.freqHz, true
+		s.bench.freqHz, s.bench.freqSet = p.freqHz, true
 	}
 	if err := s.configure(ctx, p.freqHz); err != nil {
 		return err
 	}
 	if p.predicted {
-		p.v1 = p.gEst * s.ampVrms
+		p.v1 = p.gEst * s.bench.ampVrms
 	}
 	if err := s.setOutput(ctx, true, p.v1); err != nil {
 		return err
@@ -160,7 +160,7 @@ func (p *pointRun) step(ctx context.Context) error {
 // dwellS returns the dwell after the step, physical seconds.
 func (p *pointRun) dwellS() float64 {
 	s, tol := p.s, p.tol
-	p.weak = p.predicted && s.gain.Len() < 2 && p.predGain <= 0
+	p.weak = p.predicted && s.pred.gain.Len() < 2 && p.predGain <= 0
 	if !p.predicted {
 		if tau := s.tau(); tau > 0 {
 			// Unknown target: the worst case, from zero or from the state.
@@ -172,7 +172,7 @@ func (p *pointRun) dwellS() float64 {
 	// step at either end of the band, the dwell would be longer; waiting
 	// up to τ/2 of it is enough, since from there on the model check sees
 	// the step and extends the dwell.
-	u := math.Min(0.5, 1.5*s.predErr(p.predGain > 0))
+	u := math.Min(0.5, 1.5*s.pred.err(p.predGain > 0))
 	if s.trendNoise() < tol/3 {
 		// The converge test's trend check sees a step the prediction
 		// missed, to a third of the tolerance.
@@ -200,8 +200,8 @@ func (p *pointRun) planDwell(ctx context.Context) error {
 	}
 	p.tau = s.tau()
 	tau := p.tau
-	readS := s.reading.TimeS(s.meter())
-	s.refining = p.predGain > 0
+	readS := s.bench.reading.TimeS(s.meter())
+	s.pred.refining = p.predGain > 0
 	nb, probe := s.holdGuard(p.tStep, p.dwell, p.v1, p.predicted && !p.weak)
 	winS := float64(max(2, s.plan.Settle.Readings)) * readS
 	if end := s.holdAhead(p.tStep+nb, p.tStep+nb+winS); end > 0 {
@@ -335,10 +335,10 @@ func (p *pointRun) overRange(ctx context.Context, ts, v float64) (reaction, erro
 	p.over = true
 	vEst := p.last.Vrms
 	if !(vEst > 0) {
-		vEst = s.ranges()[s.rangeIdx].FullScaleVrms * s.inst.Converter.Window().OverFraction * 3.2
+		vEst = s.ranges()[s.bench.rangeIdx].FullScaleVrms * s.inst.Converter.Window().OverFraction * 3.2
 	}
 	if s.inst.Converter != nil && s.plan.Ranging.Strategy != plan.RangeFixed {
-		changed, err := s.guard(ctx, vEst, vEst/s.ampVrms, p.freqHz, fmt.Sprintf("over-range at %s", analysis.FormatHz(p.freqHz, 4)))
+		changed, err := s.guard(ctx, vEst, vEst/s.bench.ampVrms, p.freqHz, fmt.Sprintf("over-range at %s", analysis.FormatHz(p.freqHz, 4)))
 		if err != nil {
 			return stopRead, err
 		}
@@ -366,8 +366,8 @@ func (p *pointRun) scoutReading(ctx context.Context, ts float64) (reaction, erro
 	p.scout = false
 	if y1 := settle.StepTarget(p.tau, p.y0, ts, p.last.Vrms*p.last.Vrms); y1 > 0 {
 		vEst := math.Sqrt(y1)
-		s.scoutGain = vEst / s.ampVrms
-		changed, err := s.guard(ctx, vEst, vEst/s.ampVrms, p.freqHz, fmt.Sprintf("first reading %.4g Vrms at %s", vEst, analysis.FormatHz(p.freqHz, 4)))
+		s.pred.scoutGain = vEst / s.bench.ampVrms
+		changed, err := s.guard(ctx, vEst, vEst/s.bench.ampVrms, p.freqHz, fmt.Sprintf("first reading %.4g Vrms at %s", vEst, analysis.FormatHz(p.freqHz, 4)))
 		if err != nil {
 			return stopRead, err
 		}
@@ -448,7 +448,7 @@ func (p *pointRun) extend(ctx context.Context, ts, vrms, need float64) error {
 	p.cv = settle.NewConverge(p.crit)
 	wakeAt := p.crit.NotBeforeS
 	if s.inst.HoldS > 0 {
-		readS := s.reading.TimeS(s.meter())
+		readS := s.bench.reading.TimeS(s.meter())
 		if pr := need - p.tau*math.Log(1.5); pr-readS > ts {
 			p.probe, p.probeV = pr, 0
 			wakeAt = pr - readS
@@ -465,7 +465,7 @@ func (p *pointRun) converged(ctx context.Context, ts float64) (reaction, error) 
 	s, r := p.s, p.r
 	w := p.cv.Window()
 	wMean, _ := settle.Stats(w)
-	readS := s.reading.TimeS(s.meter())
+	readS := s.bench.reading.TimeS(s.meter())
 	// The motion expected between the probe and the window, by the
 	// prediction and by the model check's estimate: a probe frozen by a
 	// hold fools the estimate, not the prediction.
@@ -501,7 +501,7 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 	s, r := p.s, p.r
 	r.log.Debug().Float64("freq_hz", p.freqHz).Float64("dwell_s", p.dwell).Float64("not_before_s", p.crit.NotBeforeS).
 		Int("samples", len(p.cv.Samples())).Int("rechecks", p.recheck).Bool("converged", p.cv.Converged()).
-		Float64("t_s", r.phys()-p.tStep).Float64("aperture_s", s.reading.ApertureS).Int("average", s.reading.Average).
+		Float64("t_s", r.phys()-p.tStep).Float64("aperture_s", s.bench.reading.ApertureS).Int("average", s.bench.reading.Average).
 		Bool("predicted", p.predicted).Float64("tau_s", p.tau).Msg("point timing")
 	win := p.cv.Window()
 	var mean, stdRel, dcMean, settleS float64
@@ -517,11 +517,11 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 		// threshold; record that bound, flagged.
 		w := s.inst.Converter.Window()
 		dcMean = w.DCFullScaleV * w.OverFraction
-		mean = s.ranges()[s.rangeIdx].FullScaleVrms * w.OverFraction
+		mean = s.ranges()[s.bench.rangeIdx].FullScaleVrms * w.OverFraction
 		settleS = r.phys() - p.tStep
 	}
-	vin := s.ampVrms
-	if s.inst.VinMeter != nil && !p.over && s.outputOn {
+	vin := s.bench.ampVrms
+	if s.inst.VinMeter != nil && !p.over && s.bench.outputOn {
 		if vin, err = s.readVin(ctx); err != nil {
 			return pt, false, err
 		}
@@ -560,11 +560,11 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 // reports that an under-range window changed the range or level.
 func (p *pointRun) converterFlags(ctx context.Context, pt *point.Point, dcMean float64) (again bool, err error) {
 	s, r := p.s, p.r
-	rg := s.ranges()[s.rangeIdx]
-	pt.RangeIndex, pt.Range, pt.RangeFSVrms = s.rangeIdx, rg.Name, rg.FullScaleVrms
+	rg := s.ranges()[s.bench.rangeIdx]
+	pt.RangeIndex, pt.Range, pt.RangeFSVrms = s.bench.rangeIdx, rg.Name, rg.FullScaleVrms
 	status := driver.OverRange
 	if !p.over {
-		cr, err := s.inst.Converter.Scale(s.rangeIdx, dcMean)
+		cr, err := s.inst.Converter.Scale(s.bench.rangeIdx, dcMean)
 		if err != nil {
 			return false, err
 		}
@@ -577,7 +577,7 @@ func (p *pointRun) converterFlags(ctx context.Context, pt *point.Point, dcMean f
 	switch status {
 	case driver.UnderRange:
 		if p.cv.Converged() && mean > 0 {
-			changed, err := s.guard(ctx, mean, mean/s.ampVrms, p.freqHz, fmt.Sprintf("under-range at %s", analysis.FormatHz(p.freqHz, 4)))
+			changed, err := s.guard(ctx, mean, mean/s.bench.ampVrms, p.freqHz, fmt.Sprintf("under-range at %s", analysis.FormatHz(p.freqHz, 4)))
 			if err != nil {
 				return false, err
 			}
@@ -594,12 +594,12 @@ func (p *pointRun) converterFlags(ctx context.Context, pt *point.Point, dcMean f
 		pt.Flags = append(pt.Flags, point.FlagBeyondBand)
 	}
 	if as, ok := s.inst.Converter.(driver.AccuracySpec); ok {
-		if rel, ok := as.AccuracyRel(s.rangeIdx, p.freqHz); ok {
+		if rel, ok := as.AccuracyRel(s.bench.rangeIdx, p.freqHz); ok {
 			pt.ConvAccRel = rel
 		}
 	}
 	if ds, ok := s.inst.DCVoltmeter.(driver.DCAccuracySpec); ok {
-		pt.DCAccV = ds.DCAccuracyV(dcMean, s.dcCfg.RangeV)
+		pt.DCAccV = ds.DCAccuracyV(dcMean, s.bench.dcCfg.RangeV)
 	}
 	return false, nil
 }
@@ -609,7 +609,7 @@ func (p *pointRun) converterFlags(ctx context.Context, pt *point.Point, dcMean f
 func (p *pointRun) learn(pt point.Point) {
 	s := p.s
 	mean := pt.VoutVrms
-	if !(mean > 0) || !s.outputOn {
+	if !(mean > 0) || !s.bench.outputOn {
 		return
 	}
 	// The converter model now starts from what was measured.
@@ -619,21 +619,11 @@ func (p *pointRun) learn(pt point.Point) {
 		return
 	}
 	if p.predicted && p.v1 > 0 {
-		h := &s.predErrs[0]
-		if p.predGain > 0 {
-			h = &s.predErrs[1]
-		}
-		*h = append(*h, math.Abs(mean/p.v1-1))
-		if len(*h) > 3 {
-			*h = (*h)[1:]
-		}
+		s.pred.noteError(p.predGain > 0, math.Abs(mean/p.v1-1))
 	}
-	s.gain.Add(p.freqHz, mean/s.ampVrms)
-	s.scoutGain = 0
+	s.pred.gain.Add(p.freqHz, mean/s.bench.ampVrms)
+	s.pred.scoutGain = 0
 	if pt.Readings >= 2 {
-		s.noise = append(s.noise, pt.StdRel*math.Sqrt(float64(pt.Readings)))
-		if len(s.noise) > 3 {
-			s.noise = s.noise[1:]
-		}
+		s.pred.noteNoise(pt.StdRel * math.Sqrt(float64(pt.Readings)))
 	}
 }
