@@ -23,6 +23,7 @@ import (
 	"rolloff/sweep/event"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/store"
 )
@@ -86,7 +87,7 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer run.Close()
-	opts := sched.Opts{Operator: terminalOperator(env), Through: through}
+	opts := sched.Opts{Operator: terminalOperator(env), Finish: finish.Analyze(p, run.Dir(), through)}
 	if b.Sim != nil {
 		opts.Operator = simOperator(env, b, opts.Operator)
 	}

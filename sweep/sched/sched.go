@@ -119,14 +119,12 @@ type Opts struct {
 	// 100 ms wall) doubling between tries.
 	Retries      int
 	RetryBackoff time.Duration
-	// NoAnalysis skips the analysis and exports at the end.
+	// Finish, when set, ends a done run: it receives the run's points and
+	// returns the result JSON for the result event (or nil). Package
+	// sweep/sched/finish provides the analysis and exports.
+	Finish FinishFunc
+	// NoAnalysis skips Finish.
 	NoAnalysis bool
-	// Through is the normalization run's points (see LoadThrough): the
-	// analysis divides the response by it, interpolated in log f.
-	Through []point.Point
-	// Finish, when set, replaces the analysis and exports at the end: it
-	// receives the run's points and returns the result JSON (or nil).
-	Finish func(ctx context.Context, pts []point.Point) (json []byte, err error)
 }
 
 // Status is a snapshot of a run.
@@ -144,17 +142,17 @@ type Status struct {
 	Err        string        `json:"error,omitempty"`
 }
 
+// FinishFunc is a run's finish step, called once its points are stored:
+// the analysis and exports, typically (see package sweep/sched/finish).
+// Its error is logged as a run event; the run is done either way.
+type FinishFunc func(ctx context.Context, pts []point.Point) (resultJSON []byte, err error)
+
 // recorder is what a run needs of its store: store.Run implements it. A
 // state event given to AppendEvent also records the run's state.
 type recorder interface {
 	AppendPoint(p point.Point) error
 	AppendEvent(e event.Event) error
 	Points() ([]point.Point, error)
-}
-
-// dirRecorder is a recorder with a directory for the exports.
-type dirRecorder interface {
-	Dir() string
 }
 
 // Run is one running sweep.
