@@ -162,7 +162,7 @@ func (r schedRun) Snapshot() queue.Snapshot {
 	st := r.Status()
 	sn := queue.Snapshot{State: st.State, Prompt: st.Prompt}
 	if st.Total > 0 {
-		sn.Progress = &event.Progress{Done: st.Done, Total: st.Total, FreqHz: st.FreqHz, ETASec: st.ETASec, Elapsed: st.ElapsedSec}
+		sn.Progress = &event.Progress{Done: st.Done, Total: st.Total, FreqHz: st.FreqHz, ETA: st.ETA, Elapsed: st.Elapsed}
 	}
 	return sn
 }

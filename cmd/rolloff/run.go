@@ -239,7 +239,7 @@ func (pr *progress) show(ev event.Event, st sched.Status) {
 		if st.Total > 0 {
 			pr.bar.ChangeMax(st.Total)
 		}
-		eta := time.Duration(st.ETASec * float64(time.Second)).Round(time.Second)
+		eta := st.ETA.Round(time.Second)
 		pr.bar.Describe(fmt.Sprintf("%-9s %12s  ETA %s", st.State, analysis.FormatHz(st.FreqHz, 4), eta))
 		_ = pr.bar.Set(st.Done)
 		if ev.Type == event.TypePrompt || (ev.Type == event.TypeLog && ev.Message != "") {
@@ -254,7 +254,7 @@ func (pr *progress) show(ev event.Event, st sched.Status) {
 		pt := ev.Point
 		e := l.Info().Int("seq", pt.Seq).Float64("freq_hz", pt.FreqHz).Float64("gain_db", pt.GainDB).
 			Str("range", pt.Range).Float64("settle_s", pt.SettleS).Int("done", st.Done).Int("total", st.Total).
-			Float64("eta_s", st.ETASec)
+			Float64("eta_s", st.ETA.Seconds())
 		if len(pt.Flags) > 0 {
 			e = e.Strs("flags", pt.Flags)
 		}

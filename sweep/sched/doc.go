@@ -79,8 +79,10 @@
 //
 // # Time
 //
-// Durations are physical seconds; Instruments.TimeScale (model seconds
-// per wall second on a simulated bench) converts them to wall time. Disk
+// Durations are physical seconds (float64, named with an S suffix);
+// Instruments.TimeScale (model seconds per wall second on a simulated
+// bench) converts them to wall time, which is a time.Duration (the
+// clock, Status.ETA and Status.Elapsed). Disk
 // writes happen in the journal's goroutine so that an fsync never delays
 // the sweep.
 //

@@ -1,6 +1,7 @@
 package sched
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"time"
@@ -24,24 +25,42 @@ func (r *Run) halt() {
 	go r.haltRetry()
 }
 
-// haltOnce tries Halt once, bounded by haltTimeout.
+// haltOnce tries Halt once, bounded by haltTimeout (wall time). A Halt
+// of an earlier try that timed out and is still running is waited for
+// again instead of starting another, so that a generator whose Halt
+// hangs holds one goroutine, not one per try.
 func (r *Run) haltOnce() error {
-	done := make(chan error, 1)
-	go func() { done <- r.inst.Generator.Halt() }()
+	r.mu.Lock()
+	done := r.halting
+	if done == nil {
+		done = make(chan error, 1)
+		r.halting = done
+		g := r.inst.Generator
+		go func() { done <- g.Halt() }()
+	}
+	r.mu.Unlock()
+	t := time.NewTimer(haltTimeout)
+	defer t.Stop()
 	select {
 	case err := <-done:
+		r.mu.Lock()
+		r.halting = nil
+		r.mu.Unlock()
 		return err
-	case <-time.After(haltTimeout):
+	case <-t.C:
 		return fmt.Errorf("sched: generator halt timed out after %v: %w", haltTimeout, driver.ErrTimeout)
 	}
 }
 
-// haltRetry retries a failed halt with backoff (wall time).
+// haltRetry retries a failed halt with backoff, on the run's clock (wall
+// time).
 func (r *Run) haltRetry() {
-	deadline := time.Now().Add(haltRetryFor)
+	deadline := r.clock.Now().Add(haltRetryFor)
 	wait := 250 * time.Millisecond
-	for tries := 2; time.Now().Before(deadline); tries++ {
-		time.Sleep(wait)
+	for tries := 2; r.clock.Now().Before(deadline); tries++ {
+		if err := r.clock.Sleep(context.Background(), wait); err != nil {
+			return
+		}
 		err := r.haltOnce()
 		if err == nil {
 			r.log.Warn().Int("tries", tries).Msg("generator output off after a failed halt")

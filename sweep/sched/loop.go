@@ -16,6 +16,10 @@ import (
 	"rolloff/sweep/settle"
 )
 
+// haltTimeout bounds the generator's Halt during shutdown (wall time; a
+// variable for the tests).
+var haltTimeout = 3 * time.Second
+
 // errPaused interrupts a point when a pause was requested.
 var errPaused = errors.New("sched: paused")
 
@@ -30,8 +34,6 @@ const (
 	// maxAttempts bounds the re-measurements of one point (range or level
 	// changes).
 	maxAttempts = 8
-	// haltTimeout bounds the generator's Halt during shutdown.
-	haltTimeout = 3 * time.Second
 	// haltRetryFor bounds the retries of a failed halt.
 	haltRetryFor = 10 * time.Minute
 	// vinReadings bounds the readings of the Vin channel per point.
@@ -425,7 +427,7 @@ func (s *sweeper) measure(ctx context.Context, idx int, freqHz float64, refined 
 			return fmt.Errorf("sched: point %d at %g Hz: no stable range or level after %d attempts", idx, freqHz, attempt)
 		}
 		if err := r.pausedErr(ctx); err != nil {
-			if err == errPaused {
+			if errors.Is(err, errPaused) {
 				if err := s.pause(ctx); err != nil {
 					return err
 				}
@@ -434,7 +436,7 @@ func (s *sweeper) measure(ctx context.Context, idx int, freqHz float64, refined 
 			return err
 		}
 		pt, again, err := s.attempt(ctx, idx, freqHz, refined, predGain, attempt)
-		if err == errPaused {
+		if errors.Is(err, errPaused) {
 			if err := s.pause(ctx); err != nil {
 				return err
 			}

@@ -39,11 +39,11 @@ func (s *sweeper) publishProgress() {
 		// (its points sit on the skirts, where the dwells are).
 		remaining += float64(n) * s.prog.actSum / float64(len(s.prog.pts))
 	}
-	eta := remaining / r.scale()
+	eta := r.wall(remaining)
 	r.mu.Lock()
-	r.status.Done, r.status.Total, r.status.ETASec = done, total, eta
-	elapsed := r.clock.Now().Sub(r.t0).Seconds()
+	r.status.Done, r.status.Total, r.status.ETA = done, total, eta
+	elapsed := r.clock.Now().Sub(r.t0)
 	freq := r.status.FreqHz
 	r.mu.Unlock()
-	r.emit(event.Event{Type: event.TypeProgress, Progress: &event.Progress{Done: done, Total: total, FreqHz: freq, ETASec: eta, Elapsed: elapsed}})
+	r.emit(event.Event{Type: event.TypeProgress, Progress: &event.Progress{Done: done, Total: total, FreqHz: freq, ETA: eta, Elapsed: elapsed}})
 }
