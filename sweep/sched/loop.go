@@ -40,20 +40,8 @@ const (
 	vinReadings = 6
 )
 
-// sweeper is the loop's private state; only the run goroutine touches it.
-type sweeper struct {
-	r     *Run
-	inst  Instruments
-	plan  *plan.Plan
-	ranks []int // range indices by ascending full scale
-
-	bench benchState   // the instruments' settings
-	conv  convModel    // the converter's averaged state
-	hold  holdSchedule // the converter's output hold as seen so far
-	pred  predictor    // the gain predictor and its error history
-	prog  progress     // the points measured and their timing
-}
-
+// main runs the sweep and ends the run, however it ends: the generator
+// halted, the final state recorded, the subscribers closed.
 func (r *Run) main(ctx context.Context) {
 	s := &sweeper{r: r, inst: r.inst, plan: r.plan}
 	err := s.run(ctx)

@@ -9,6 +9,20 @@ import (
 	"rolloff/sweep/settle"
 )
 
+// sweeper is the loop's private state; only the run goroutine touches it.
+type sweeper struct {
+	r     *Run
+	inst  Instruments
+	plan  *plan.Plan
+	ranks []int // range indices by ascending full scale
+
+	bench benchState   // the instruments' settings
+	conv  convModel    // the converter's averaged state
+	hold  holdSchedule // the converter's output hold as seen so far
+	pred  predictor    // the gain predictor and its error history
+	prog  progress     // the points measured and their timing
+}
+
 // benchState is what the scheduler knows of the instruments' settings:
 // the converter's range, the generator's amplitude, output and frequency,
 // and the voltmeter's configuration.
