@@ -21,6 +21,7 @@ import (
 	"rolloff/sweep/point"
 	"rolloff/sweep/queue"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/store"
 )
@@ -137,7 +138,7 @@ func (g *bridge) Start(ctx context.Context, id string, p *plan.Plan, resume bool
 		g.release(id)
 		return nil, err
 	}
-	opts := sched.Opts{Resume: resume, SubscriberBuffer: 4096, Through: through}
+	opts := sched.Opts{Resume: resume, SubscriberBuffer: 4096, Finish: finish.Analyze(p, r.Dir(), through)}
 	if g.b.Sim != nil {
 		opts.RangeKnown, opts.CurrentRange = true, g.b.Sim.ConverterRange()
 	}
@@ -161,7 +162,7 @@ func (r schedRun) Snapshot() queue.Snapshot {
 	st := r.Status()
 	sn := queue.Snapshot{State: st.State, Prompt: st.Prompt}
 	if st.Total > 0 {
-		sn.Progress = &event.Progress{Done: st.Done, Total: st.Total, FreqHz: st.FreqHz, ETASec: st.ETASec, Elapsed: st.ElapsedSec}
+		sn.Progress = &event.Progress{Done: st.Done, Total: st.Total, FreqHz: st.FreqHz, ETA: st.ETA, Elapsed: st.Elapsed}
 	}
 	return sn
 }

@@ -12,6 +12,7 @@ import (
 	"rolloff/sweep/analysis"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/store"
 )
 
@@ -108,7 +109,7 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer run.Close()
-	opts := sched.Opts{Operator: simOperator(env, b, nil)}
+	opts := sched.Opts{Operator: simOperator(env, b, nil), Finish: finish.Analyze(p, run.Dir(), nil)}
 	return sweepAndReport(ctx, env, b, p, run, opts, compare)
 }
 

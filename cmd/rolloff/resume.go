@@ -14,6 +14,7 @@ import (
 	"rolloff/driver/profile"
 	"rolloff/sweep/event"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/store"
 )
 
@@ -81,7 +82,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer b.Close()
-	opts := sched.Opts{Resume: true, Operator: terminalOperator(env)}
+	opts := sched.Opts{Resume: true, Operator: terminalOperator(env), Finish: finish.Analyze(p, run.Dir(), nil)}
 	if b.Sim != nil {
 		opts.Operator = simOperator(env, b, opts.Operator)
 	}

@@ -58,13 +58,14 @@ type Prompt struct {
 	FreqHz     float64 `json:"freq_hz"`
 }
 
-// Progress is where the run is.
+// Progress is where the run is. ETA and Elapsed are wall time; JSON
+// carries them as seconds, "eta_s" and "elapsed_s" (see MarshalJSON).
 type Progress struct {
-	Done    int     `json:"done"`
-	Total   int     `json:"total"`
-	FreqHz  float64 `json:"freq_hz"`
-	ETASec  float64 `json:"eta_s"`
-	Elapsed float64 `json:"elapsed_s"`
+	Done    int
+	Total   int
+	FreqHz  float64
+	ETA     time.Duration
+	Elapsed time.Duration
 }
 
 // Event is one entry of a run's timeline.

@@ -15,6 +15,7 @@ import (
 	"rolloff/sweep/plan"
 	"rolloff/sweep/point"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/settle"
 	"rolloff/sweep/store"
@@ -98,6 +99,9 @@ func sweepRun(t testing.TB, ctx context.Context, b *bench.Bench, run *store.Run,
 		opts.Operator = func(ctx context.Context, pr event.Prompt) (int, error) {
 			return pr.RangeIndex, b.Sim.SelectRange(pr.RangeIndex)
 		}
+	}
+	if opts.Finish == nil && !opts.NoAnalysis {
+		opts.Finish = finish.Analyze(p, run.Dir(), nil)
 	}
 	t0 := time.Now()
 	r := sched.Start(ctx, inst, p, run, opts)
