@@ -23,6 +23,11 @@ type Generator struct {
 	mu  lock
 	p   *profile.Generator
 	lim driver.GeneratorLimits
+
+	// The last settings sent (guarded by mu), for templates that carry
+	// several parameters: ampSet is false until the first amplitude.
+	freqHz, amplitude float64
+	freqSet, ampSet   bool
 }
 
 var (
@@ -50,6 +55,14 @@ func NewGenerator(sess *scpi.Session, p *profile.Generator, bench driver.Generat
 	}
 	if bench.MaxVrms > 0 {
 		lim.MaxVrms = math.Min(lim.MaxVrms, bench.MaxVrms)
+	}
+	if off := math.Abs(p.Output.DUTOffsetV()); off > 0 {
+		// The DC offset adds in power: Vrms at the DUT = √(Vac² + Vdc²).
+		if off >= lim.MaxVrms {
+			return nil, fmt.Errorf("instr: generator %s: output.offset_v %g V puts %g V DC on the DUT, at or above the amplitude limit %g Vrms: %w",
+				p.File, p.Output.OffsetV, off, lim.MaxVrms, driver.ErrOutOfRange)
+		}
+		lim.MaxVrms = math.Sqrt(lim.MaxVrms*lim.MaxVrms - off*off)
 	}
 	if !(lim.MinFreqHz < lim.MaxFreqHz) {
 		return nil, fmt.Errorf("instr: generator %s: frequency limits %g..%g Hz (profile) and %g..%g Hz (bench) leave nothing: %w",
@@ -101,7 +114,44 @@ func (g *Generator) Setup(ctx context.Context) error {
 			return err
 		}
 	}
+	if t.SetOffset != nil {
+		if err := g.send(ctx, t.SetOffset, scpi.Num("offset_v", g.p.Output.OffsetV)); err != nil {
+			return err
+		}
+	}
 	return nil
+}
+
+// args returns the arguments t takes among the frequency, amplitude and
+// offset, from the settings last sent (the smallest amplitude the limits
+// allow before the first one).
+func (g *Generator) args(t *scpi.Template, freqHz, amplitude float64) []scpi.Arg {
+	var out []scpi.Arg
+	for _, n := range t.Placeholders() {
+		switch n {
+		case "freq_hz":
+			out = append(out, scpi.Num(n, freqHz))
+		case "amplitude":
+			out = append(out, scpi.Num(n, amplitude))
+		case "offset_v":
+			out = append(out, scpi.Num(n, g.p.Output.OffsetV))
+		}
+	}
+	return out
+}
+
+// lowestAmplitude is the amplitude sent before the first SetAmplitude by
+// a frequency template that carries {amplitude}: the smallest level the
+// limits allow, in the instrument's unit.
+func (g *Generator) lowestAmplitude() float64 {
+	a := g.InstrumentAmplitude(g.lim.MinVrms)
+	if math.IsNaN(a) || math.IsInf(a, 0) {
+		if m := g.p.Limits.MinAmplitude; m != nil {
+			return *m
+		}
+		return g.p.Limits.MaxAmplitude // unreachable: a dBm profile has min_amplitude
+	}
+	return a
 }
 
 // SetFrequency sets the sine frequency in hertz.
@@ -113,7 +163,16 @@ func (g *Generator) SetFrequency(ctx context.Context, freqHz float64) error {
 		return fmt.Errorf("generator: %w", err)
 	}
 	defer g.mu.release()
-	return g.send(ctx, g.p.T.SetFrequency, scpi.Num("freq_hz", freqHz))
+	amp := g.amplitude
+	if !g.ampSet {
+		amp = g.lowestAmplitude()
+	}
+	t := g.p.T.SetFrequency
+	if err := g.send(ctx, t, g.args(t, freqHz, amp)...); err != nil {
+		return err
+	}
+	g.freqHz, g.freqSet = freqHz, true
+	return g.readBack(ctx, true, hasArg(t, "amplitude"), freqHz, amp)
 }
 
 // SetAmplitude sets the amplitude, Vrms at the DUT input.
@@ -129,7 +188,19 @@ func (g *Generator) SetAmplitude(ctx context.Context, vrms float64) error {
 		return fmt.Errorf("generator: %w", err)
 	}
 	defer g.mu.release()
-	return g.send(ctx, g.p.T.SetAmplitude, scpi.Num("amplitude", a))
+	t := g.p.T.SetAmplitude
+	f := g.freqHz
+	if hasArg(t, "freq_hz") && !g.freqSet {
+		f = math.Max(g.lim.MinFreqHz, math.Min(1000, g.lim.MaxFreqHz))
+	}
+	if err := g.send(ctx, t, g.args(t, f, a)...); err != nil {
+		return err
+	}
+	g.amplitude, g.ampSet = a, true
+	if hasArg(t, "freq_hz") {
+		g.freqHz, g.freqSet = f, true
+	}
+	return g.readBack(ctx, hasArg(t, "freq_hz"), true, f, a)
 }
 
 // InstrumentAmplitude returns the value the amplitude command is given for
