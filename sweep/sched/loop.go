@@ -1321,6 +1321,9 @@ func (s *sweeper) readVin(ctx context.Context) (float64, error) {
 		if !(v > 0) || math.IsInf(v, 0) {
 			return 0, fmt.Errorf("sched: Vin reading %g Vrms: %w", v, driver.ErrMalformed)
 		}
+		if err := s.checkVin(v); err != nil {
+			return 0, err
+		}
 		if math.Abs(v-prev) <= tol*v {
 			break
 		}
