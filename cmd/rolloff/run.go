@@ -142,6 +142,7 @@ func sweepAndReport(ctx context.Context, env *cmdEnv, b *bench.Bench, p *plan.Pl
 			opts.RangeKnown, opts.CurrentRange = true, pts[len(pts)-1].RangeIndex
 		}
 	}
+	_ = b.SetRunID(run.ID()) // named to a controller refused by the bench lock
 	start := time.Now()
 	r := sched.Start(ctx, inst, p, run, opts)
 	events, cancel := r.Subscribe()
