@@ -64,8 +64,8 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return err
 	}
-	if err := p.Validate(cfg.Limits.Driver()); err != nil {
-		return err
+	if err := onbench.CheckPlan(cfg, p); err != nil {
+		return &exitError{code: 2, err: err} // refused before any instrument is opened
 	}
 	st, err := store.Open(*out)
 	if err != nil {

@@ -44,33 +44,9 @@ func NewGenerator(sess *scpi.Session, p *profile.Generator, bench driver.Generat
 	if sess == nil || p == nil {
 		return nil, fmt.Errorf("instr: NewGenerator: nil session or profile")
 	}
-	lim := driver.GeneratorLimits{
-		MinFreqHz: math.Max(p.Limits.MinFreqHz, bench.MinFreqHz),
-		MaxFreqHz: p.Limits.MaxFreqHz,
-		MinVrms:   math.Max(p.MinVrms(), bench.MinVrms),
-		MaxVrms:   p.MaxVrms(),
-	}
-	if bench.MaxFreqHz > 0 {
-		lim.MaxFreqHz = math.Min(lim.MaxFreqHz, bench.MaxFreqHz)
-	}
-	if bench.MaxVrms > 0 {
-		lim.MaxVrms = math.Min(lim.MaxVrms, bench.MaxVrms)
-	}
-	if off := math.Abs(p.Output.DUTOffsetV()); off > 0 {
-		// The DC offset adds in power: Vrms at the DUT = √(Vac² + Vdc²).
-		if off >= lim.MaxVrms {
-			return nil, fmt.Errorf("instr: generator %s: output.offset_v %g V puts %g V DC on the DUT, at or above the amplitude limit %g Vrms: %w",
-				p.File, p.Output.OffsetV, off, lim.MaxVrms, driver.ErrOutOfRange)
-		}
-		lim.MaxVrms = math.Sqrt(lim.MaxVrms*lim.MaxVrms - off*off)
-	}
-	if !(lim.MinFreqHz < lim.MaxFreqHz) {
-		return nil, fmt.Errorf("instr: generator %s: frequency limits %g..%g Hz (profile) and %g..%g Hz (bench) leave nothing: %w",
-			p.File, p.Limits.MinFreqHz, p.Limits.MaxFreqHz, bench.MinFreqHz, bench.MaxFreqHz, driver.ErrOutOfRange)
-	}
-	if !(lim.MinVrms < lim.MaxVrms) {
-		return nil, fmt.Errorf("instr: generator %s: amplitude limits %g..%g Vrms (profile, at the DUT) and %g..%g Vrms (bench) leave nothing: %w",
-			p.File, p.MinVrms(), p.MaxVrms(), bench.MinVrms, bench.MaxVrms, driver.ErrOutOfRange)
+	lim, err := GeneratorLimitsFor(p, bench)
+	if err != nil {
+		return nil, err
 	}
 	return &Generator{
 		link: link{role: "generator", sess: sess, checkErrors: p.Commands.CheckErrors},
@@ -245,4 +221,41 @@ func (g *Generator) Halt() error {
 		return fmt.Errorf("generator: halt: %s sent, not confirmed: %w", cmd, err)
 	}
 	return nil
+}
+
+// GeneratorLimitsFor returns the settings a generator of profile p
+// accepts on a bench with limits bench (see NewGenerator): the tighter of
+// the two, the amplitude cap lowered for the profile's DC offset. It
+// sends nothing, so a plan can be checked against them before any
+// instrument is opened.
+func GeneratorLimitsFor(p *profile.Generator, bench driver.GeneratorLimits) (driver.GeneratorLimits, error) {
+	lim := driver.GeneratorLimits{
+		MinFreqHz: math.Max(p.Limits.MinFreqHz, bench.MinFreqHz),
+		MaxFreqHz: p.Limits.MaxFreqHz,
+		MinVrms:   math.Max(p.MinVrms(), bench.MinVrms),
+		MaxVrms:   p.MaxVrms(),
+	}
+	if bench.MaxFreqHz > 0 {
+		lim.MaxFreqHz = math.Min(lim.MaxFreqHz, bench.MaxFreqHz)
+	}
+	if bench.MaxVrms > 0 {
+		lim.MaxVrms = math.Min(lim.MaxVrms, bench.MaxVrms)
+	}
+	if off := math.Abs(p.Output.DUTOffsetV()); off > 0 {
+		// The DC offset adds in power: Vrms at the DUT = √(Vac² + Vdc²).
+		if off >= lim.MaxVrms {
+			return driver.GeneratorLimits{}, fmt.Errorf("instr: generator %s: output.offset_v %g V puts %g V DC on the DUT, at or above the amplitude limit %g Vrms: %w",
+				p.File, p.Output.OffsetV, off, lim.MaxVrms, driver.ErrOutOfRange)
+		}
+		lim.MaxVrms = math.Sqrt(lim.MaxVrms*lim.MaxVrms - off*off)
+	}
+	if !(lim.MinFreqHz < lim.MaxFreqHz) {
+		return driver.GeneratorLimits{}, fmt.Errorf("instr: generator %s: frequency limits %g..%g Hz (profile) and %g..%g Hz (bench) leave nothing: %w",
+			p.File, p.Limits.MinFreqHz, p.Limits.MaxFreqHz, bench.MinFreqHz, bench.MaxFreqHz, driver.ErrOutOfRange)
+	}
+	if !(lim.MinVrms < lim.MaxVrms) {
+		return driver.GeneratorLimits{}, fmt.Errorf("instr: generator %s: amplitude limits %g..%g Vrms (profile, at the DUT) and %g..%g Vrms (bench) leave nothing: %w",
+			p.File, p.MinVrms(), p.MaxVrms(), bench.MinVrms, bench.MaxVrms, driver.ErrOutOfRange)
+	}
+	return lim, nil
 }

@@ -107,7 +107,9 @@ type sweeper struct {
 func (r *Run) main(ctx context.Context) {
 	s := &sweeper{r: r, inst: r.inst, plan: r.plan}
 	err := s.run(ctx)
-	r.halt()
+	if !refused(err) { // a refused plan has sent nothing, not even output off
+		r.halt()
+	}
 	var final event.State
 	msg := ""
 	switch {
@@ -379,6 +381,9 @@ func (s *sweeper) check() error {
 	if s.plan == nil {
 		return errors.New("sched: no plan")
 	}
+	if err := s.checkPlanFirst(); err != nil {
+		return err
+	}
 	if !(s.plan.Level.Vrms > 0) {
 		return fmt.Errorf("sched: plan level.vrms %g: want a positive amplitude", s.plan.Level.Vrms)
 	}
@@ -477,6 +482,8 @@ func (s *sweeper) prepare(ctx context.Context) error {
 			s.rangeIdx = r.opts.CurrentRange
 		case last != nil:
 			s.rangeIdx = last.RangeIndex
+		case len(s.ranges()) == 1:
+			s.rangeIdx = 0 // a single-range converter needs no range named
 		default:
 			return fmt.Errorf("sched: plan ranging.start is empty and the converter's range is unknown: name the range for strategy %q", s.plan.Ranging.Strategy)
 		}

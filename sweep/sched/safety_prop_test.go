@@ -103,7 +103,8 @@ func propBench(t *testing.T, g propGen, load string, scale float64) (*profile.Be
 // 1 MHz; an amplitude near the limit (60 % to 100 % of limitVrms) for
 // half of the plans, else from 5 mV to 1.5 × limitVrms (log-uniform, so
 // some above it); for the level strategy a window reaching up to 100
-// times the planned amplitude.
+// times the planned amplitude but not past the limit (the plan check
+// refuses more, before anything is sent).
 func randomPlan(rng *rand.Rand, strategy string, ranges []driver.Range, limitVrms float64) *plan.Plan {
 	logU := func(lo, hi float64) float64 { return lo * math.Pow(hi/lo, rng.Float64()) }
 	start := logU(2, 2e5)
@@ -119,9 +120,10 @@ func randomPlan(rng *rand.Rand, strategy string, ranges []driver.Range, limitVrm
 		p.Level.Vrms = limitVrms * (0.6 + 0.4*rng.Float64())
 	}
 	if strategy == plan.RangeLevel {
-		p.Level.MinVrms = p.Level.Vrms * logU(0.01, 1)
-		p.Level.MaxVrms = p.Level.Vrms * logU(1, 100)
+		p.Level.MinVrms = math.Max(1e-3, p.Level.Vrms*logU(0.01, 1))
+		p.Level.MaxVrms = math.Min(limitVrms, p.Level.Vrms*logU(1, 100))
 	}
+	p.ReferenceHz = math.Sqrt(p.Frequencies.StartHz * p.Frequencies.StopHz)
 	if strategy == plan.RangeFixed || rng.IntN(2) == 0 {
 		p.Ranging.Start = ranges[rng.IntN(len(ranges))].Name
 	}
@@ -192,6 +194,9 @@ func TestPropertyNeverAboveLimit(t *testing.T) {
 					runs++
 					if rerr != nil {
 						failed++
+						if testing.Verbose() {
+							t.Logf("%s: %v", name, rerr)
+						}
 					}
 					worst = math.Max(worst, peak/maxVrms)
 					if peak > maxVrms*(1+1e-9) {
