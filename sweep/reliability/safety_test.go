@@ -16,7 +16,7 @@ import (
 
 	"github.com/rs/zerolog"
 
-		"rolloff/driver"
+	"rolloff/driver"
 	"rolloff/driver/bench"
 	"rolloff/driver/profile"
 	"rolloff/sweep/event"
