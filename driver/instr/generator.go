@@ -118,16 +118,17 @@ func (g *Generator) args(t *scpi.Template, freqHz, amplitude float64) []scpi.Arg
 
 // lowestAmplitude is the amplitude sent before the first SetAmplitude by
 // a frequency template that carries {amplitude}: the smallest level the
-// limits allow, in the instrument's unit.
-func (g *Generator) lowestAmplitude() float64 {
-	a := g.InstrumentAmplitude(g.lim.MinVrms)
-	if math.IsNaN(a) || math.IsInf(a, 0) {
-		if m := g.p.Limits.MinAmplitude; m != nil {
-			return *m
-		}
-		return g.p.Limits.MaxAmplitude // unreachable: a dBm profile has min_amplitude
+// limits allow, in the instrument's unit. ok is false when there is no
+// such level (dBm with no lower limit): the caller must then refuse.
+func (g *Generator) lowestAmplitude() (a float64, ok bool) {
+	a = g.InstrumentAmplitude(g.lim.MinVrms)
+	if !math.IsNaN(a) && !math.IsInf(a, 0) {
+		return a, true
 	}
-	return a
+	if m := g.p.Limits.MinAmplitude; m != nil {
+		return *m, true
+	}
+	return 0, false
 }
 
 // SetFrequency sets the sine frequency in hertz.
@@ -139,11 +140,15 @@ func (g *Generator) SetFrequency(ctx context.Context, freqHz float64) error {
 		return fmt.Errorf("generator: %w", err)
 	}
 	defer g.mu.release()
-	amp := g.amplitude
-	if !g.ampSet {
-		amp = g.lowestAmplitude()
-	}
 	t := g.p.T.SetFrequency
+	amp := g.amplitude
+	if !g.ampSet && hasArg(t, "amplitude") {
+		var ok bool
+		if amp, ok = g.lowestAmplitude(); !ok {
+			return fmt.Errorf("generator: %s carries {amplitude}: set the amplitude before the first frequency (the profile gives no lowest level in %s): %w",
+				t.Key(), g.p.Output.Unit, driver.ErrOutOfRange)
+		}
+	}
 	if err := g.send(ctx, t, g.args(t, freqHz, amp)...); err != nil {
 		return err
 	}

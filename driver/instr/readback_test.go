@@ -120,3 +120,28 @@ func TestApplyTemplate(t *testing.T) {
 		t.Errorf("MaxVrms with offset = %g, want %g", got, want)
 	}
 }
+
+// TestApplyTemplateNoLowestLevel: a dBm profile with no lower limit has no
+// smallest level to send with the first frequency of an apply-style
+// command: the frequency is refused, nothing sent, until an amplitude is
+// set (never the highest level in its place).
+func TestApplyTemplateNoLowestLevel(t *testing.T) {
+	p := genProfile(t, `unit = "vrms"`, "unit = \"dbm\"\ndbm_reference = 50", "min_amplitude = 0.0", "", "max_amplitude = 7.07", "max_amplitude = 23.0",
+		`set_frequency = "SOURce:FREQuency {freq_hz}"`, `set_frequency = "APPLy:SINusoid {freq_hz},{amplitude},{offset_v}"`,
+		`check_errors = true`, `check_errors = false`)
+	g, err := NewGenerator(inline(t, "> SOURce:VOLTage 0\n> APPLy:SINusoid 1000,0,0\n"), p, bench)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	if err := g.SetFrequency(ctx, 1000); !errors.Is(err, driver.ErrOutOfRange) {
+		t.Fatalf("first frequency before any amplitude: %v; want a refusal", err)
+	}
+	// 0 dBm into 50 Ω is 0.2236 Vrms: within the bench's 1 Vrms.
+	if err := g.SetAmplitude(ctx, 0.22360679774997896); err != nil {
+		t.Fatal(err)
+	}
+	if err := g.SetFrequency(ctx, 1000); err != nil {
+		t.Fatal(err)
+	}
+}

@@ -190,7 +190,8 @@ type GeneratorCommands struct {
 	QueryFrequency string `toml:"query_frequency"`
 	QueryAmplitude string `toml:"query_amplitude"`
 	// ReadbackTolerance is the relative difference allowed between a
-	// setting and its read-back (default 1e-3, 1e-9 to 0.1).
+	// setting and its read-back (default 2e-3, which covers an instrument
+	// rounding dBm to 0.01 dB; 1e-9 to 0.1).
 	ReadbackTolerance float64 `toml:"readback_tolerance"`
 	// OutputOn and OutputOff switch the output. No placeholders.
 	OutputOn  string `toml:"output_on"`
@@ -301,7 +302,7 @@ func (g *Generator) validate(p *problems) {
 	t.OutputOff = compileTemplate(p, "commands.output_off", c.OutputOff, true)
 	g.checkGeneratorTemplates(p)
 	if c.ReadbackTolerance != 0 && (!finite(c.ReadbackTolerance) || c.ReadbackTolerance < 1e-9 || c.ReadbackTolerance > 0.1) {
-		p.add("commands.readback_tolerance", c.ReadbackTolerance, "1e-9 to 0.1 (relative), or 0 for the default 1e-3", "bad read-back tolerance")
+		p.add("commands.readback_tolerance", c.ReadbackTolerance, "1e-9 to 0.1 (relative), or 0 for the default 2e-3", "bad read-back tolerance")
 	}
 	if o.OffsetV != 0 && t.SetOffset == nil && !hasPlaceholder(t.SetFrequency, "offset_v") && !hasPlaceholder(t.SetAmplitude, "offset_v") {
 		p.add("output.offset_v", o.OffsetV, "0, or a commands.set_offset (or {offset_v} in set_frequency/set_amplitude) to send it", "offset never sent")
@@ -311,7 +312,7 @@ func (g *Generator) validate(p *problems) {
 // ReadbackTol returns the relative read-back tolerance, defaulted.
 func (g *Generator) ReadbackTol() float64 {
 	if g.Commands.ReadbackTolerance == 0 {
-		return 1e-3
+		return 2e-3
 	}
 	return g.Commands.ReadbackTolerance
 }
