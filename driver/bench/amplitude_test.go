@@ -85,7 +85,7 @@ func TestAmplitudeEveryUnitLoadConvention(t *testing.T) {
 		for _, load := range []string{"50", "hi-z", "10"} {
 			for _, dut := range []string{"hi-z", "50"} {
 				t.Run(fmt.Sprintf("%s/load=%s/dut=%s", gc.name, load, dut), func(t *testing.T) {
-					simEdits := []string{"source_ohm = 50\n", fmt.Sprintf("source_ohm = 50\ndbm_reference = %q\ndbm_fixed_ohm = %g\n", gc.simDBm, math.Max(gc.simOhm, 50))}
+					simEdits := []string{"dbm_reference = \"fixed\"\ndbm_fixed_ohm = 50\n", fmt.Sprintf("dbm_reference = %q\ndbm_fixed_ohm = %g\n", gc.simDBm, math.Max(gc.simOhm, 50))}
 					if dut != "hi-z" {
 						simEdits = append(simEdits, "input_ohm = 0", "input_ohm = "+dut)
 					}
@@ -137,7 +137,7 @@ func TestAmplitudeEveryUnitLoadConvention(t *testing.T) {
 // instrument uses (output.dbm_reference, no default).
 func TestDBmConventionMismatch(t *testing.T) {
 	gen := append(append([]string{}, genCases[2].edits...), loadEdit("10", "hi-z")...) // dBm into the load setting
-	cfg, err := loadBenchWith(t, gen, []string{"source_ohm = 50\n", "source_ohm = 50\ndbm_reference = \"fixed\"\ndbm_fixed_ohm = 50\n"})
+	cfg, err := loadBenchWith(t, gen, []string{"dbm_fixed_ohm = 50\n", "dbm_fixed_ohm = 50\n"})
 	if err != nil {
 		t.Fatal(err)
 	}
