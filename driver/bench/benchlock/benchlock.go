@@ -87,9 +87,11 @@ type Lock struct {
 	release bool
 }
 
-// Dir returns the directory of the lock files: $XDG_RUNTIME_DIR/rolloff,
-// else the user's state directory ($XDG_STATE_HOME or ~/.local/state)
-// /rolloff/locks, else os.TempDir()/rolloff-<uid>.
+// Dir returns the directory of the lock files: $ROLLOFF_LOCK_DIR when set
+// (tests), else $XDG_RUNTIME_DIR/rolloff, else the user's state directory
+// ($XDG_STATE_HOME or ~/.local/state)/rolloff/locks, else
+// os.TempDir()/rolloff-<uid>. Every rolloff process of one user must see
+// the same directory for the lock to bind them.
 func Dir() string {
 	if d := os.Getenv("ROLLOFF_LOCK_DIR"); d != "" {
 		return d
