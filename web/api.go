@@ -338,6 +338,11 @@ func (s *Server) decodePlan(r *http.Request) (*plan.Plan, queue.Source, error) {
 	if err := s.be.CheckThrough(p); err != nil {
 		return nil, src, err
 	}
+	if c, ok := s.be.(interface{ CheckPlan(*plan.Plan) error }); ok {
+		if err := c.CheckPlan(p); err != nil { // against the bench, before it is queued
+			return nil, src, err
+		}
+	}
 	return p, src, nil
 }
 

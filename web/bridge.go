@@ -145,9 +145,11 @@ func (g *bridge) Start(ctx context.Context, id string, p *plan.Plan, resume bool
 	if g.tune != nil {
 		g.tune(&opts)
 	}
+	_ = g.b.SetRunID(r.ID()) // named to a controller refused by the bench lock
 	run := sched.Start(ctx, onbench.Instruments(g.b, g.log), p, r, opts)
 	go func() {
 		<-run.Done()
+		_ = g.b.SetRunID("")
 		g.release(id)
 	}()
 	return schedRun{run}, nil

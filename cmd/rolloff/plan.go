@@ -55,8 +55,8 @@ func runPlanCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return err
 	}
-	if err := p.Validate(cfg.Limits.Driver()); err != nil {
-		return err
+	if err := onbench.CheckPlan(cfg, p); err != nil {
+		return &exitError{code: 2, err: err} // refused before any instrument is opened
 	}
 	freqs, err := p.Freqs()
 	if err != nil {

@@ -65,8 +65,8 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return err
 	}
-	if err := p.Validate(cfg.Limits.Driver()); err != nil {
-		return err
+	if err := onbench.CheckPlan(cfg, p); err != nil {
+		return &exitError{code: 2, err: err} // refused before any instrument is opened
 	}
 	st, err := store.Open(*out)
 	if err != nil {
@@ -143,6 +143,7 @@ func sweepAndReport(ctx context.Context, env *cmdEnv, b *bench.Bench, p *plan.Pl
 			opts.RangeKnown, opts.CurrentRange = true, pts[len(pts)-1].RangeIndex
 		}
 	}
+	_ = b.SetRunID(run.ID()) // named to a controller refused by the bench lock
 	start := time.Now()
 	r := sched.Start(ctx, inst, p, run, opts)
 	events, cancel := r.Subscribe()

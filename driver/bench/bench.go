@@ -16,6 +16,7 @@ import (
 
 	"rolloff/configs"
 	"rolloff/driver"
+	"rolloff/driver/bench/benchlock"
 	"rolloff/driver/instr"
 	"rolloff/driver/profile"
 	"rolloff/driver/scpi"
@@ -62,6 +63,7 @@ type Bench struct {
 	sessions  []*scpi.Session
 	closeOnce sync.Once
 	closeErr  error
+	lock      *benchlock.Lock // the instruments' addresses, held while open
 }
 
 // Role names, as in the bench file and the simulator.
@@ -129,6 +131,9 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 		b.log.Info().Float64("time_scale", b.TimeScale).Msg("simulated bench started")
 	}
 
+	if err := b.takeLock(cfg); err != nil {
+		return err
+	}
 	// The generator first, and its output off before anything else.
 	g := cfg.Generator
 	sess, where, err := b.connect(ctx, cfg, RoleGenerator, g.Address, g.Generator.Framing)
@@ -317,6 +322,7 @@ func (b *Bench) Close() error {
 				errs = append(errs, fmt.Errorf("bench: simulated bench: %w", err))
 			}
 		}
+		b.releaseLock()
 		b.closeErr = errors.Join(errs...)
 	})
 	return b.closeErr

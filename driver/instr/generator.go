@@ -23,6 +23,11 @@ type Generator struct {
 	mu  lock
 	p   *profile.Generator
 	lim driver.GeneratorLimits
+
+	// The last settings sent (guarded by mu), for templates that carry
+	// several parameters: ampSet is false until the first amplitude.
+	freqHz, amplitude float64
+	freqSet, ampSet   bool
 }
 
 var (
@@ -39,25 +44,9 @@ func NewGenerator(sess *scpi.Session, p *profile.Generator, bench driver.Generat
 	if sess == nil || p == nil {
 		return nil, fmt.Errorf("instr: NewGenerator: nil session or profile")
 	}
-	lim := driver.GeneratorLimits{
-		MinFreqHz: math.Max(p.Limits.MinFreqHz, bench.MinFreqHz),
-		MaxFreqHz: p.Limits.MaxFreqHz,
-		MinVrms:   math.Max(p.MinVrms(), bench.MinVrms),
-		MaxVrms:   p.MaxVrms(),
-	}
-	if bench.MaxFreqHz > 0 {
-		lim.MaxFreqHz = math.Min(lim.MaxFreqHz, bench.MaxFreqHz)
-	}
-	if bench.MaxVrms > 0 {
-		lim.MaxVrms = math.Min(lim.MaxVrms, bench.MaxVrms)
-	}
-	if !(lim.MinFreqHz < lim.MaxFreqHz) {
-		return nil, fmt.Errorf("instr: generator %s: frequency limits %g..%g Hz (profile) and %g..%g Hz (bench) leave nothing: %w",
-			p.File, p.Limits.MinFreqHz, p.Limits.MaxFreqHz, bench.MinFreqHz, bench.MaxFreqHz, driver.ErrOutOfRange)
-	}
-	if !(lim.MinVrms < lim.MaxVrms) {
-		return nil, fmt.Errorf("instr: generator %s: amplitude limits %g..%g Vrms (profile, at the DUT) and %g..%g Vrms (bench) leave nothing: %w",
-			p.File, p.MinVrms(), p.MaxVrms(), bench.MinVrms, bench.MaxVrms, driver.ErrOutOfRange)
+	lim, err := GeneratorLimitsFor(p, bench)
+	if err != nil {
+		return nil, err
 	}
 	return &Generator{
 		link: link{role: "generator", sess: sess, checkErrors: p.Commands.CheckErrors},
@@ -101,7 +90,45 @@ func (g *Generator) Setup(ctx context.Context) error {
 			return err
 		}
 	}
+	if t.SetOffset != nil {
+		if err := g.send(ctx, t.SetOffset, scpi.Num("offset_v", g.p.Output.OffsetV)); err != nil {
+			return err
+		}
+	}
 	return nil
+}
+
+// args returns the arguments t takes among the frequency, amplitude and
+// offset, from the settings last sent (the smallest amplitude the limits
+// allow before the first one).
+func (g *Generator) args(t *scpi.Template, freqHz, amplitude float64) []scpi.Arg {
+	var out []scpi.Arg
+	for _, n := range t.Placeholders() {
+		switch n {
+		case "freq_hz":
+			out = append(out, scpi.Num(n, freqHz))
+		case "amplitude":
+			out = append(out, scpi.Num(n, amplitude))
+		case "offset_v":
+			out = append(out, scpi.Num(n, g.p.Output.OffsetV))
+		}
+	}
+	return out
+}
+
+// lowestAmplitude is the amplitude sent before the first SetAmplitude by
+// a frequency template that carries {amplitude}: the smallest level the
+// limits allow, in the instrument's unit. ok is false when there is no
+// such level (dBm with no lower limit): the caller must then refuse.
+func (g *Generator) lowestAmplitude() (a float64, ok bool) {
+	a = g.InstrumentAmplitude(g.lim.MinVrms)
+	if !math.IsNaN(a) && !math.IsInf(a, 0) {
+		return a, true
+	}
+	if m := g.p.Limits.MinAmplitude; m != nil {
+		return *m, true
+	}
+	return 0, false
 }
 
 // SetFrequency sets the sine frequency in hertz.
@@ -113,7 +140,20 @@ func (g *Generator) SetFrequency(ctx context.Context, freqHz float64) error {
 		return fmt.Errorf("generator: %w", err)
 	}
 	defer g.mu.release()
-	return g.send(ctx, g.p.T.SetFrequency, scpi.Num("freq_hz", freqHz))
+	t := g.p.T.SetFrequency
+	amp := g.amplitude
+	if !g.ampSet && hasArg(t, "amplitude") {
+		var ok bool
+		if amp, ok = g.lowestAmplitude(); !ok {
+			return fmt.Errorf("generator: %s carries {amplitude}: set the amplitude before the first frequency (the profile gives no lowest level in %s): %w",
+				t.Key(), g.p.Output.Unit, driver.ErrOutOfRange)
+		}
+	}
+	if err := g.send(ctx, t, g.args(t, freqHz, amp)...); err != nil {
+		return err
+	}
+	g.freqHz, g.freqSet = freqHz, true
+	return g.readBack(ctx, true, hasArg(t, "amplitude"), freqHz, amp)
 }
 
 // SetAmplitude sets the amplitude, Vrms at the DUT input.
@@ -129,7 +169,19 @@ func (g *Generator) SetAmplitude(ctx context.Context, vrms float64) error {
 		return fmt.Errorf("generator: %w", err)
 	}
 	defer g.mu.release()
-	return g.send(ctx, g.p.T.SetAmplitude, scpi.Num("amplitude", a))
+	t := g.p.T.SetAmplitude
+	f := g.freqHz
+	if hasArg(t, "freq_hz") && !g.freqSet {
+		f = math.Max(g.lim.MinFreqHz, math.Min(1000, g.lim.MaxFreqHz))
+	}
+	if err := g.send(ctx, t, g.args(t, f, a)...); err != nil {
+		return err
+	}
+	g.amplitude, g.ampSet = a, true
+	if hasArg(t, "freq_hz") {
+		g.freqHz, g.freqSet = f, true
+	}
+	return g.readBack(ctx, hasArg(t, "freq_hz"), true, f, a)
 }
 
 // InstrumentAmplitude returns the value the amplitude command is given for
@@ -174,4 +226,41 @@ func (g *Generator) Halt() error {
 		return fmt.Errorf("generator: halt: %s sent, not confirmed: %w", cmd, err)
 	}
 	return nil
+}
+
+// GeneratorLimitsFor returns the settings a generator of profile p
+// accepts on a bench with limits bench (see NewGenerator): the tighter of
+// the two, the amplitude cap lowered for the profile's DC offset. It
+// sends nothing, so a plan can be checked against them before any
+// instrument is opened.
+func GeneratorLimitsFor(p *profile.Generator, bench driver.GeneratorLimits) (driver.GeneratorLimits, error) {
+	lim := driver.GeneratorLimits{
+		MinFreqHz: math.Max(p.Limits.MinFreqHz, bench.MinFreqHz),
+		MaxFreqHz: p.Limits.MaxFreqHz,
+		MinVrms:   math.Max(p.MinVrms(), bench.MinVrms),
+		MaxVrms:   p.MaxVrms(),
+	}
+	if bench.MaxFreqHz > 0 {
+		lim.MaxFreqHz = math.Min(lim.MaxFreqHz, bench.MaxFreqHz)
+	}
+	if bench.MaxVrms > 0 {
+		lim.MaxVrms = math.Min(lim.MaxVrms, bench.MaxVrms)
+	}
+	if off := math.Abs(p.Output.DUTOffsetV()); off > 0 {
+		// The DC offset adds in power: Vrms at the DUT = √(Vac² + Vdc²).
+		if off >= lim.MaxVrms {
+			return driver.GeneratorLimits{}, fmt.Errorf("instr: generator %s: output.offset_v %g V puts %g V DC on the DUT, at or above the amplitude limit %g Vrms: %w",
+				p.File, p.Output.OffsetV, off, lim.MaxVrms, driver.ErrOutOfRange)
+		}
+		lim.MaxVrms = math.Sqrt(lim.MaxVrms*lim.MaxVrms - off*off)
+	}
+	if !(lim.MinFreqHz < lim.MaxFreqHz) {
+		return driver.GeneratorLimits{}, fmt.Errorf("instr: generator %s: frequency limits %g..%g Hz (profile) and %g..%g Hz (bench) leave nothing: %w",
+			p.File, p.Limits.MinFreqHz, p.Limits.MaxFreqHz, bench.MinFreqHz, bench.MaxFreqHz, driver.ErrOutOfRange)
+	}
+	if !(lim.MinVrms < lim.MaxVrms) {
+		return driver.GeneratorLimits{}, fmt.Errorf("instr: generator %s: amplitude limits %g..%g Vrms (profile, at the DUT) and %g..%g Vrms (bench) leave nothing: %w",
+			p.File, p.MinVrms(), p.MaxVrms(), bench.MinVrms, bench.MaxVrms, driver.ErrOutOfRange)
+	}
+	return lim, nil
 }

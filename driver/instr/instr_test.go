@@ -171,7 +171,7 @@ func TestGeneratorVppLoad(t *testing.T) {
 }
 
 func TestGeneratorDBm(t *testing.T) {
-	p := genProfile(t, `unit = "vrms"`, `unit = "dbm"`, `load = "hi-z"`, `load = 50`, `dut_load = "hi-z"`, `dut_load = 50`,
+	p := genProfile(t, `unit = "vrms"`, "unit = \"dbm\"\ndbm_reference = \"load\"", `load = "hi-z"`, `load = 50`, `dut_load = "hi-z"`, `dut_load = 50`,
 		`check_errors = true`, `check_errors = false`, `min_amplitude = 0.0`, `min_amplitude = -60.0`, `max_amplitude = 7.07`, `max_amplitude = 23.0`)
 	ctx := context.Background()
 	g, err := NewGenerator(playback(t, "generator_dbm.txt"), p, bench)

@@ -38,7 +38,7 @@ type GeneratorInstrumentLimit struct {
 const (
 	UnitVrms = "vrms" // volts RMS
 	UnitVpp  = "vpp"  // volts peak to peak; a sine's Vpp = 2√2·Vrms
-	UnitDBm  = "dbm"  // dB re 1 mW into the load setting: 10·log10(Vrms²/R / 1 mW)
+	UnitDBm  = "dbm"  // dB re 1 mW into the reference resistance R (output.dbm_reference): 10·log10(Vrms²/R / 1 mW)
 )
 
 // HiZ is the load value meaning a high-impedance (open-circuit) load.
@@ -64,8 +64,20 @@ type GeneratorOutput struct {
 	// DUTLoad is the input resistance the DUT presents: "hi-z" or ohms.
 	// Default "hi-z".
 	DUTLoad any `toml:"dut_load"`
+	// DBmReference is the resistance the instrument's dBm refer to:
+	// "load" (its load setting, Load) or a fixed number of ohms (e.g. 50,
+	// whatever the load setting). Required when Unit is dbm, refused
+	// otherwise: generators differ on this and a wrong guess puts
+	// √(R_wrong/R_right) times the planned voltage on the DUT.
+	DBmReference any `toml:"dbm_reference"`
+	// OffsetV is the DC offset the instrument is set to, volts as it
+	// shows them across its load setting (default 0). It is sent through
+	// {offset_v} and counted against the bench limit: the RMS at the DUT
+	// is √(Vac² + Vdc²).
+	OffsetV float64 `toml:"offset_v"`
 
 	loadOhms, dutOhms float64 // +Inf for hi-z
+	dbmRefOhms        float64 // resolved dBm reference, ohms
 }
 
 // SourceImpedance returns the source impedance in ohms, defaulted.
@@ -101,13 +113,19 @@ func (o *GeneratorOutput) DUTVrms(shownVrms float64) float64 {
 	return shownVrms / o.ShownVrms(1)
 }
 
-// ToUnit converts a shown Vrms (sine) to the instrument's unit.
+// DBmRefOhms returns the resistance dBm amplitudes refer to (the load
+// setting or the fixed output.dbm_reference); 0 when the unit is not dBm.
+func (o *GeneratorOutput) DBmRefOhms() float64 { return o.dbmRefOhms }
+
+// ToUnit converts a shown Vrms (sine) to the instrument's unit. A dBm
+// level is the power the shown Vrms would deliver into the dBm reference
+// resistance R: 10·log10(Vrms²/R / 1 mW) (definition of dBm).
 func (o *GeneratorOutput) ToUnit(shownVrms float64) float64 {
 	switch o.Unit {
 	case UnitVpp:
 		return 2 * math.Sqrt2 * shownVrms
 	case UnitDBm:
-		return 10 * math.Log10(shownVrms*shownVrms/o.loadOhms/1e-3)
+		return 10 * math.Log10(shownVrms*shownVrms/o.dbmRefOhms/1e-3)
 	}
 	return shownVrms
 }
@@ -118,9 +136,15 @@ func (o *GeneratorOutput) FromUnit(v float64) float64 {
 	case UnitVpp:
 		return v / (2 * math.Sqrt2)
 	case UnitDBm:
-		return math.Sqrt(math.Pow(10, v/10) * 1e-3 * o.loadOhms)
+		return math.Sqrt(math.Pow(10, v/10) * 1e-3 * o.dbmRefOhms)
 	}
 	return v
+}
+
+// DUTOffsetV returns the DC offset at the DUT input for the offset
+// setting: the source impedance divides DC as it divides the sine.
+func (o *GeneratorOutput) DUTOffsetV() float64 {
+	return o.DUTVrms(o.OffsetV)
 }
 
 // UnitWord returns the SCPI character data for Unit: VRMS, VPP or DBM.
@@ -148,10 +172,27 @@ type GeneratorCommands struct {
 	// SetLoad tells the instrument its load; {load} is the number of ohms
 	// or INFinity for hi-z. Optional.
 	SetLoad string `toml:"set_load"`
-	// SetFrequency sets the frequency; {freq_hz} in hertz.
+	// SetFrequency sets the frequency; {freq_hz} in hertz. It may also
+	// carry {amplitude} and {offset_v} (an apply-style command setting
+	// them together): rolloff fills them with the amplitude it last set
+	// (or the smallest it may set, before the first) and the offset.
 	SetFrequency string `toml:"set_frequency"`
-	// SetAmplitude sets the amplitude; {amplitude} in Output.Unit.
+	// SetAmplitude sets the amplitude; {amplitude} in Output.Unit. It may
+	// also carry {freq_hz} and {offset_v}.
 	SetAmplitude string `toml:"set_amplitude"`
+	// SetOffset sets the DC offset; {offset_v} is Output.OffsetV.
+	// Optional; sent once at set-up.
+	SetOffset string `toml:"set_offset"`
+	// QueryFrequency and QueryAmplitude read the frequency (hertz) and
+	// the amplitude (in Output.Unit) back. Optional: where given, every
+	// setting is read back and a difference beyond ReadbackTolerance
+	// switches the output off and fails the run.
+	QueryFrequency string `toml:"query_frequency"`
+	QueryAmplitude string `toml:"query_amplitude"`
+	// ReadbackTolerance is the relative difference allowed between a
+	// setting and its read-back (default 2e-3, which covers an instrument
+	// rounding dBm to 0.01 dB; 1e-9 to 0.1).
+	ReadbackTolerance float64 `toml:"readback_tolerance"`
 	// OutputOn and OutputOff switch the output. No placeholders.
 	OutputOn  string `toml:"output_on"`
 	OutputOff string `toml:"output_off"`
@@ -169,6 +210,9 @@ type GeneratorTemplates struct {
 	SetLoad      *scpi.Template
 	SetFrequency *scpi.Template
 	SetAmplitude *scpi.Template
+	SetOffset    *scpi.Template
+	QueryFreq    *scpi.Template
+	QueryAmpl    *scpi.Template
 	OutputOn     *scpi.Template
 	OutputOff    *scpi.Template
 }
@@ -216,8 +260,9 @@ func (g *Generator) validate(p *problems) {
 	if o.dutOhms, ok = parseLoad(p, "output.dut_load", o.DUTLoad); !ok {
 		o.dutOhms = math.Inf(1)
 	}
-	if o.Unit == UnitDBm && math.IsInf(o.loadOhms, 1) {
-		p.add("output.load", o.Load, `ohms (e.g. 50) when output.unit = "dbm"`, "dBm needs a finite load setting")
+	g.validateDBm(p)
+	if !finite(o.OffsetV) || math.Abs(o.OffsetV) > maxProfileVrms {
+		p.add("output.offset_v", o.OffsetV, fmt.Sprintf("-%g to %g V", maxProfileVrms, maxProfileVrms), "bad offset")
 	}
 	l := g.Limits
 	if !finite(l.MinFreqHz) || l.MinFreqHz < 0 || !finite(l.MaxFreqHz) || l.MaxFreqHz <= l.MinFreqHz || l.MaxFreqHz > maxProfileFreqHz {
@@ -248,10 +293,28 @@ func (g *Generator) validate(p *problems) {
 	t.FunctionSine = compileTemplate(p, "commands.function_sine", c.FunctionSine, true)
 	t.SetUnit = compileTemplate(p, "commands.set_unit", c.SetUnit, false, "unit")
 	t.SetLoad = compileTemplate(p, "commands.set_load", c.SetLoad, false, "load")
-	t.SetFrequency = compileTemplate(p, "commands.set_frequency", c.SetFrequency, true, "freq_hz")
-	t.SetAmplitude = compileTemplate(p, "commands.set_amplitude", c.SetAmplitude, true, "amplitude")
+	t.SetFrequency = compileGenTemplate(p, "commands.set_frequency", c.SetFrequency, true, []string{"freq_hz"}, "amplitude", "offset_v")
+	t.SetAmplitude = compileGenTemplate(p, "commands.set_amplitude", c.SetAmplitude, true, []string{"amplitude"}, "freq_hz", "offset_v")
+	t.SetOffset = compileGenTemplate(p, "commands.set_offset", c.SetOffset, false, []string{"offset_v"})
+	t.QueryFreq = compileGenTemplate(p, "commands.query_frequency", c.QueryFrequency, false, nil)
+	t.QueryAmpl = compileGenTemplate(p, "commands.query_amplitude", c.QueryAmplitude, false, nil)
 	t.OutputOn = compileTemplate(p, "commands.output_on", c.OutputOn, true)
 	t.OutputOff = compileTemplate(p, "commands.output_off", c.OutputOff, true)
+	g.checkGeneratorTemplates(p)
+	if c.ReadbackTolerance != 0 && (!finite(c.ReadbackTolerance) || c.ReadbackTolerance < 1e-9 || c.ReadbackTolerance > 0.1) {
+		p.add("commands.readback_tolerance", c.ReadbackTolerance, "1e-9 to 0.1 (relative), or 0 for the default 2e-3", "bad read-back tolerance")
+	}
+	if o.OffsetV != 0 && t.SetOffset == nil && !hasPlaceholder(t.SetFrequency, "offset_v") && !hasPlaceholder(t.SetAmplitude, "offset_v") {
+		p.add("output.offset_v", o.OffsetV, "0, or a commands.set_offset (or {offset_v} in set_frequency/set_amplitude) to send it", "offset never sent")
+	}
+}
+
+// ReadbackTol returns the relative read-back tolerance, defaulted.
+func (g *Generator) ReadbackTol() float64 {
+	if g.Commands.ReadbackTolerance == 0 {
+		return 2e-3
+	}
+	return g.Commands.ReadbackTolerance
 }
 
 // MinVrms and MaxVrms return the instrument's amplitude limits as Vrms at

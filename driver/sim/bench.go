@@ -62,6 +62,7 @@ type Bench struct {
 	gen       genState
 	sig       model.Signal // at the DUT input
 	sigTS     float64      // model time the signal started
+	peakVrms  float64      // largest DUT input since New or ResetPeak
 	overUntil time.Time    // converter overload fault
 	rngConv   *rand.Rand
 	rngVM     *rand.Rand
@@ -253,6 +254,7 @@ func (b *Bench) applyLocked(t float64) {
 	if b.gen.on {
 		sig.Vrms = b.gen.dutVrms(b.cfg.Generator.SourceOhm, b.cfg.DUT.InputOhm)
 	}
+	b.notePeakLocked()
 	if sig != b.sig {
 		b.sig = sig
 		b.sigTS = t

@@ -54,6 +54,12 @@ type GeneratorConfig struct {
 	// Harmonics is the number of harmonics synthesised for square and
 	// triangle waves (1..2047).
 	Harmonics int `toml:"harmonics"`
+	// DBmReference is what DBM amplitudes refer to: "fixed" (power into
+	// DBmFixedOhm whatever the load setting) or "load" (power into the
+	// OUTPut:LOAD setting; DBM at INFinity is a settings conflict). Real
+	// generators do either.
+	DBmReference string  `toml:"dbm_reference"`
+	DBmFixedOhm  float64 `toml:"dbm_fixed_ohm"`
 }
 
 // Section is one filter section of the DUT. Kind is one of
@@ -204,6 +210,9 @@ func DemoConfig() Config {
 			ResetVrms:   0.1,
 			ResetUnit:   "VRMS",
 			Harmonics:   model.MaxHarmonics,
+			// 50 Ω whatever the load setting.
+			DBmReference: DBmFixed,
+			DBmFixedOhm:  50,
 		},
 		DUT: DUTConfig{
 			GainDB: 20,
@@ -324,6 +333,10 @@ func (c *Config) Validate() error {
 	if _, ok := unitByName(g.ResetUnit); !ok {
 		bad("generator.reset_unit", g.ResetUnit, `"VRMS", "VPP" or "DBM"`)
 	}
+	if g.DBmReference != DBmFixed && g.DBmReference != DBmLoad {
+		bad("generator.dbm_reference", g.DBmReference, `"fixed" (dbm_fixed_ohm) or "load" (the OUTPut:LOAD setting)`)
+	}
+	positive("generator.dbm_fixed_ohm", g.DBmFixedOhm, 1e6)
 	if g.Harmonics < 1 || g.Harmonics > model.MaxHarmonics {
 		bad("generator.harmonics", g.Harmonics, fmt.Sprintf("1..%d", model.MaxHarmonics))
 	}

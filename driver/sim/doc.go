@@ -48,7 +48,11 @@
 // emf × R_in/(R_in + source_ohm), the emf being set × (load+source)/load;
 // with LOAD 50 into a high-impedance DUT the DUT sees twice the setting,
 // as on real generators. VPP is 2 × crest factor × Vrms; DBM is power into
-// 50 Ω.
+// dbm_fixed_ohm (dbm_reference "fixed", the demo's 50 Ω) or into the
+// OUTPut:LOAD setting (dbm_reference "load"; DBM at INFinity is -221
+// "Settings conflict"): real generators do either. The bench records the
+// largest RMS it has put into the DUT input, DC offset included
+// (PeakDUTInputVrms), from its own state alone.
 //
 // # Configuration keys
 //
@@ -60,7 +64,8 @@
 //	seed, time_scale, line_hz, error_queue_len
 //	[generator] idn, min_freq_hz, max_freq_hz, min_vrms, max_vrms,
 //	            source_ohm, load_ohm (0 = INFinity), reset_freq_hz,
-//	            reset_vrms, reset_unit ("VRMS"|"VPP"|"DBM"), harmonics
+//	            reset_vrms, reset_unit ("VRMS"|"VPP"|"DBM"), harmonics,
+//	            dbm_reference ("fixed"|"load"), dbm_fixed_ohm
 //	[dut]       gain_db, clip_v (0 = none), noise_vrms, input_ohm (0 = high),
 //	            [[dut.sections]] kind, freq_hz, q, order
 //	[converter] dc_full_scale_v, saturate_fraction, floor_fraction,
@@ -97,6 +102,8 @@
 //	[SOURce[1]:]FUNCtion[:SHAPe] SINusoid|SQUare|TRIangle and ? (SIN|SQU|TRI)
 //	OUTPut[1][:STATe] ON|OFF|1|0                          and ? (1|0)
 //	OUTPut[1]:LOAD <NRf>[OHM]|INFinity|MIN|MAX|DEF        and ? (9.9E37 = INF)
+//	[SOURce[1]:]VOLTage:OFFSet <NRf>[V]                   and ?
+//	APPLy:SINusoid [<freq>[,<amplitude>[,<offset>]]]      (sine; output state unchanged)
 //
 // Out-of-limit settings answer -222 "Data out of range" and keep the
 // previous value. *RST: output off, reset_freq_hz, reset_vrms, reset_unit,

@@ -34,8 +34,11 @@ const (
 	maxLoadOhm = 10000
 )
 
-// dBmRefOhm is the load DBM amplitudes refer to.
-const dBmRefOhm = 50
+// dBm reference conventions (GeneratorConfig.DBmReference).
+const (
+	DBmFixed = "fixed" // dBm refer to dbm_fixed_ohm whatever the load setting
+	DBmLoad  = "load"  // dBm refer to the OUTPut:LOAD setting (refused at INFinity)
+)
 
 // genState is the generator's settings.
 type genState struct {
@@ -45,6 +48,7 @@ type genState struct {
 	shape   model.Shape
 	on      bool
 	loadOhm float64 // 0: INFinity
+	offsetV float64 // DC offset setting, volts into loadOhm
 }
 
 func resetGen(c *GeneratorConfig) genState {
@@ -57,9 +61,15 @@ func resetGen(c *GeneratorConfig) genState {
 // it is told about; the DUT's input impedance divides that with the
 // source impedance.
 func (g *genState) dutVrms(sourceOhm, inputOhm float64) float64 {
-	emf := g.vrms
+	return g.atDUT(g.vrms, sourceOhm, inputOhm)
+}
+
+// atDUT divides a voltage set into the load setting down to the DUT
+// input (DC and AC alike: the impedances are resistive).
+func (g *genState) atDUT(v, sourceOhm, inputOhm float64) float64 {
+	emf := v
 	if g.loadOhm > 0 {
-		emf = g.vrms * (g.loadOhm + sourceOhm) / g.loadOhm
+		emf = v * (g.loadOhm + sourceOhm) / g.loadOhm
 	}
 	if inputOhm > 0 {
 		return emf * inputOhm / (inputOhm + sourceOhm)
@@ -68,25 +78,69 @@ func (g *genState) dutVrms(sourceOhm, inputOhm float64) float64 {
 }
 
 // toVrms converts an amplitude in unit u to Vrms for the shape: Vpp is
-// twice the peak (crest factor × Vrms), dBm is power into 50 Ω.
-func toVrms(v float64, u ampUnit, s model.Shape) float64 {
+// twice the peak (crest factor × Vrms), dBm is power into refOhm.
+func toVrms(v float64, u ampUnit, s model.Shape, refOhm float64) float64 {
 	switch u {
 	case unitVpp:
 		return v / (2 * s.Crest())
 	case unitDBm:
-		return math.Sqrt(dBmRefOhm * 1e-3 * math.Pow(10, v/10))
+		return math.Sqrt(refOhm * 1e-3 * math.Pow(10, v/10))
 	}
 	return v
 }
 
-func fromVrms(vrms float64, u ampUnit, s model.Shape) float64 {
+func fromVrms(vrms float64, u ampUnit, s model.Shape, refOhm float64) float64 {
 	switch u {
 	case unitVpp:
 		return vrms * 2 * s.Crest()
 	case unitDBm:
-		return 10 * math.Log10(vrms*vrms/dBmRefOhm/1e-3)
+		return 10 * math.Log10(vrms*vrms/refOhm/1e-3)
 	}
 	return vrms
+}
+
+// dbmRefLocked returns the resistance DBM refers to under the configured
+// convention; an error when it is the load setting and that is INFinity.
+func (b *Bench) dbmRefLocked() (float64, error) {
+	gc := &b.cfg.Generator
+	if gc.DBmReference == DBmLoad {
+		if b.gen.loadOhm == 0 {
+			return 0, scpiserver.Errorf(scpiserver.SettingsConflict, "DBM with OUTPut:LOAD INFinity")
+		}
+		return b.gen.loadOhm, nil
+	}
+	return gc.DBmFixedOhm, nil
+}
+
+// PeakDUTInputVrms returns the largest RMS voltage the generator has put
+// into the DUT input since New or the last ResetPeak, computed from the
+// generator's own state (level, unit, dBm convention, load setting,
+// source and DUT impedances, DC offset: √(Vac² + Vdc²)), not from what any
+// controller meant to set.
+func (b *Bench) PeakDUTInputVrms() float64 {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	return b.peakVrms
+}
+
+// ResetPeak forgets the recorded peak.
+func (b *Bench) ResetPeak() {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	b.peakVrms = 0
+}
+
+// notePeakLocked records the DUT input of the current state.
+func (b *Bench) notePeakLocked() {
+	if !b.gen.on {
+		return
+	}
+	gc := &b.cfg.Generator
+	ac := b.gen.dutVrms(gc.SourceOhm, b.cfg.DUT.InputOhm)
+	dc := b.gen.atDUT(b.gen.offsetV, gc.SourceOhm, b.cfg.DUT.InputOhm)
+	if v := math.Sqrt(ac*ac + dc*dc); v > b.peakVrms {
+		b.peakVrms = v
+	}
 }
 
 var shapePatterns = []string{"SINusoid", "SQUare", "TRIangle"}
@@ -162,7 +216,13 @@ func (b *Bench) generatorCommands(in *instrument) {
 			default:
 				u, _ = unitByName(n.Unit)
 			}
-			vrms = toVrms(n.V, u, g.shape)
+			ref := 0.0
+			if u == unitDBm {
+				if ref, err = b.dbmRefLocked(); err != nil {
+					return "", err
+				}
+			}
+			vrms = toVrms(n.V, u, g.shape, ref)
 		}
 		// A little slack so that a limit given in another unit and
 		// converted back is not refused by rounding.
@@ -187,8 +247,16 @@ func (b *Bench) generatorCommands(in *instrument) {
 				return "", err
 			}
 		}
-		return scpiserver.NR3(fromVrms(v, b.gen.unit, b.gen.shape)), nil
+		ref := 0.0
+		if b.gen.unit == unitDBm {
+			var err error
+			if ref, err = b.dbmRefLocked(); err != nil {
+				return "", err
+			}
+		}
+		return scpiserver.NR3(fromVrms(v, b.gen.unit, b.gen.shape, ref)), nil
 	})
+	b.offsetApplyCommands(d)
 	d.MustHandle("[SOURce[1]:]VOLTage:UNIT", func(_ context.Context, c *scpiserver.Call) (string, error) {
 		if err := c.Arity(1, 1); err != nil {
 			return "", err

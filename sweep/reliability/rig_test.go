@@ -1,6 +1,7 @@
 package reliability
 
 import (
+	"bytes"
 	"context"
 	"strings"
 	"sync"
@@ -214,4 +215,15 @@ func injected(s *sim.Bench) int {
 // logf returns a note function for verifyRun.
 func logf(t *testing.T, prefix string) func(string) {
 	return func(s string) { t.Logf("%s: %s", prefix, s) }
+}
+
+// editSim replaces text old by new in the bench file as written (its
+// [sim] table is decoded from the file's own text when the bench opens,
+// by sim.FromBenchFile), as if the file had said it.
+func editSim(t *testing.T, cfg *profile.BenchFile, old, new string) {
+	t.Helper()
+	if !bytes.Contains(cfg.Raw, []byte(old)) {
+		t.Fatalf("%q not in %s", old, cfg.File)
+	}
+	cfg.Raw = bytes.Replace(cfg.Raw, []byte(old), []byte(new), 1)
 }

@@ -45,7 +45,9 @@ const (
 func (r *Run) main(ctx context.Context) {
 	s := &sweeper{r: r, inst: r.inst, plan: r.plan}
 	err := s.run(ctx)
-	r.halt()
+	if !refused(err) { // a refused plan has sent nothing, not even output off
+		r.halt()
+	}
 	var final event.State
 	msg := ""
 	switch {
@@ -234,6 +236,9 @@ func (s *sweeper) check() error {
 	if s.plan == nil {
 		return errors.New("sched: no plan")
 	}
+	if err := s.checkPlanFirst(); err != nil {
+		return err
+	}
 	if !(s.plan.Level.Vrms > 0) {
 		return fmt.Errorf("sched: plan level.vrms %g: want a positive amplitude", s.plan.Level.Vrms)
 	}
@@ -332,6 +337,8 @@ func (s *sweeper) prepare(ctx context.Context) error {
 			s.bench.rangeIdx = r.opts.CurrentRange
 		case last != nil:
 			s.bench.rangeIdx = last.RangeIndex
+		case len(s.ranges()) == 1:
+			s.bench.rangeIdx = 0 // a single-range converter needs no range named
 		default:
 			return fmt.Errorf("sched: plan ranging.start is empty and the converter's range is unknown: name the range for strategy %q", s.plan.Ranging.Strategy)
 		}
@@ -472,6 +479,9 @@ func (s *sweeper) readVin(ctx context.Context) (float64, error) {
 		}
 		if !(v > 0) || math.IsInf(v, 0) {
 			return 0, fmt.Errorf("sched: Vin reading %g Vrms: %w", v, driver.ErrMalformed)
+		}
+		if err := s.checkVin(v); err != nil {
+			return 0, err
 		}
 		if math.Abs(v-prev) <= tol*v {
 			break
