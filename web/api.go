@@ -34,6 +34,10 @@ var Files = map[string]string{
 	"response.pdf": "application/pdf",
 }
 
+// RetryAfterFullS is the Retry-After, in seconds, of a submission
+// refused because the queue is full.
+const RetryAfterFullS = 30
+
 // MaxOverlayRuns is the most runs one overlay may combine.
 const MaxOverlayRuns = 8
 
@@ -72,6 +76,9 @@ func (s *Server) fail(w http.ResponseWriter, err error) {
 		guard.WriteError(w, http.StatusNotFound, "id", err.Error())
 	case errors.Is(err, queue.ErrState):
 		guard.WriteError(w, http.StatusConflict, "state", err.Error())
+	case errors.Is(err, queue.ErrFull):
+		w.Header().Set("Retry-After", strconv.Itoa(RetryAfterFullS))
+		guard.WriteError(w, http.StatusTooManyRequests, "", "the queue is full: "+err.Error()+"; try again later")
 	case errors.Is(err, queue.ErrClosed):
 		guard.WriteError(w, http.StatusServiceUnavailable, "", "the daemon is shutting down")
 	default:
