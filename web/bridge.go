@@ -55,6 +55,9 @@ func New(cfg Config) (*Server, error) {
 	return s, nil
 }
 
+// dataDir is the run store's directory, kept out of error answers.
+func (g *bridge) dataDir() string { return g.st.Dir() }
+
 // closeQueue lets the store's queue lock go when the server shuts down.
 func (g *bridge) closeQueue() { g.releaseQueue() }
 

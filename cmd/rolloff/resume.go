@@ -14,6 +14,7 @@ import (
 	"rolloff/driver/profile"
 	"rolloff/sweep/event"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/store"
 )
 
@@ -76,7 +77,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err := p.Validate(cfg.Limits.Driver()); err != nil {
 		return err
 	}
-	b, err := bench.Open(ctx, cfg, env.log)
+	b, err := onbench.Open(ctx, cfg, env.log)
 	if err != nil {
 		return err
 	}

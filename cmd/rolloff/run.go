@@ -76,7 +76,7 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return fmt.Errorf("%s: %w", pos[0], err)
 	}
-	b, err := bench.Open(ctx, cfg, env.log)
+	b, err := onbench.Open(ctx, cfg, env.log)
 	if err != nil {
 		return fmt.Errorf("--bench %s: %w", *benchPath, err)
 	}

@@ -14,6 +14,7 @@ import (
 	"rolloff/sweep/event"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/queue"
+	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/store"
 	"rolloff/web"
 )
@@ -134,7 +135,7 @@ func runServe(ctx context.Context, env *cmdEnv, args []string) error {
 		if lerr != nil {
 			return fmt.Errorf("--bench: %w", lerr)
 		}
-		b, err = bench.Open(ctx, cfg, env.log)
+		b, err = onbench.Open(ctx, cfg, env.log)
 	}
 	if err != nil {
 		return fmt.Errorf("--bench %s: %w", *benchPath, err)

@@ -512,12 +512,12 @@ func (s *Store) summary(id string) Summary {
 	if !m.State.Final() && m.State != event.Interrupted && !r.liveOwner() && !s.waiting(m.State) {
 		sum.State = event.Interrupted
 	}
-	if data, err := os.ReadFile(filepath.Join(r.dir, FilePoints)); err == nil {
+	if data, err := readRegular(filepath.Join(r.dir, FilePoints)); err == nil {
 		sum.Points = countLines(data)
 	} else if !errors.Is(err, fs.ErrNotExist) {
 		sum.Err = err.Error()
 	}
-	if data, err := os.ReadFile(filepath.Join(r.dir, FileResult)); err == nil {
+	if data, err := readRegular(filepath.Join(r.dir, FileResult)); err == nil {
 		sum.LowHz, sum.HighHz = corners(data)
 	}
 	return sum
