@@ -14,6 +14,7 @@ import (
 	"path/filepath"
 	"strconv"
 	"strings"
+	"syscall"
 	"time"
 
 	"rolloff/sweep/event"
@@ -82,6 +83,12 @@ func (s *Server) fail(w http.ResponseWriter, err error) {
 		guard.WriteError(w, http.StatusTooManyRequests, "", "the queue is full: "+err.Error()+"; try again later")
 	case errors.Is(err, queue.ErrClosed):
 		guard.WriteError(w, http.StatusServiceUnavailable, "", "the daemon is shutting down")
+	case errors.Is(err, syscall.EROFS):
+		s.log.Error().Err(err).Msg("request failed")
+		guard.WriteError(w, http.StatusInsufficientStorage, "", "the run store is on a read-only file system: nothing can be recorded")
+	case errors.Is(err, syscall.ENOSPC):
+		s.log.Error().Err(err).Msg("request failed")
+		guard.WriteError(w, http.StatusInsufficientStorage, "", "the run store's disk is full: nothing can be recorded")
 	default:
 		// The cause may name files of the machine: the log has it, the
 		// answer does not.

@@ -43,7 +43,11 @@ func New(cfg Config) (*Server, error) {
 	if err != nil {
 		// Runs waiting here may then look interrupted to other readers
 		// of the store; they are still run.
-		cfg.Log.Warn().Err(err).Msg("store queue lock not taken: another daemon keeps a queue on this store")
+		msg := "store queue lock not taken"
+		if errors.Is(err, store.ErrLocked) {
+			msg += ": another daemon keeps a queue on this store"
+		}
+		cfg.Log.Warn().Err(err).Msg(msg)
 		release = func() {}
 	}
 	be.releaseQueue = release
