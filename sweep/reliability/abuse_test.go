@@ -9,6 +9,7 @@ import (
 	"net/http/httptest"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strconv"
 	"strings"
 	"syscall"
@@ -269,11 +270,25 @@ func TestLargePlanLinear(t *testing.T) {
 			if format == "json" {
 				dec = plan.DecodeJSON
 			}
+			var before, after runtime.MemStats
+			runtime.GC()
+			runtime.GC() // twice: go-toml's pooled parser arena goes at the second
+			runtime.ReadMemStats(&before)
 			cpu0 := cpuTime()
 			p, err := dec("large."+format, data)
 			cpuMS := float64((cpuTime() - cpu0).Microseconds()) / 1e3
 			if err != nil {
 				t.Fatal(err)
+			}
+			runtime.GC()
+			runtime.GC()
+			runtime.ReadMemStats(&after)
+			kept := int64(after.HeapAlloc) - int64(before.HeapAlloc)
+			runtime.KeepAlive(p)
+			runtime.KeepAlive(data) // alive through both measurements
+			t.Logf("%s: the decoded plan keeps %d bytes of heap (%.2f per byte of the document)", format, kept, float64(kept)/float64(len(data)))
+			if kept > 4*int64(len(data)) {
+				t.Errorf("%s: a decoded plan of %d bytes keeps %d bytes of heap: more than 4 times its size", format, len(data), kept)
 			}
 			if len(p.Frequencies.ListHz) < 50000 {
 				t.Fatalf("%s: %d frequencies", format, len(p.Frequencies.ListHz))
