@@ -39,6 +39,13 @@ func New(cfg Config) (*Server, error) {
 		return nil, errors.New("web: no run store")
 	}
 	be := &bridge{b: cfg.Bench, st: cfg.Store, log: cfg.Log, tune: cfg.Sched, owned: map[string]*store.Run{}}
+	s, err := newServer(cfg, be)
+	if err != nil {
+		return nil, err
+	}
+	// Taken after the queue has listed the store: runs an earlier daemon
+	// left queued are found interrupted; from now on a run waiting here
+	// is listed queued.
 	release, err := cfg.Store.HoldQueue()
 	if err != nil {
 		// Runs waiting here may then look interrupted to other readers
@@ -50,20 +57,22 @@ func New(cfg Config) (*Server, error) {
 		cfg.Log.Warn().Err(err).Msg(msg)
 		release = func() {}
 	}
+	be.mu.Lock()
 	be.releaseQueue = release
-	s, err := newServer(cfg, be)
-	if err != nil {
-		release()
-		return nil, err
-	}
+	be.mu.Unlock()
 	return s, nil
 }
 
-// dataDir is the run store's directory, kept out of error answers.
-func (g *bridge) dataDir() string { return g.st.Dir() }
-
 // closeQueue lets the store's queue lock go when the server shuts down.
-func (g *bridge) closeQueue() { g.releaseQueue() }
+func (g *bridge) closeQueue() {
+	g.mu.Lock()
+	release := g.releaseQueue
+	g.releaseQueue = nil
+	g.mu.Unlock()
+	if release != nil {
+		release()
+	}
+}
 
 // bridge implements backend with the real bench, scheduler and store.
 type bridge struct {

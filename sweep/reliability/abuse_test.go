@@ -628,3 +628,59 @@ func TestBenchOpenRetried(t *testing.T) {
 		}
 	})
 }
+
+// TestQueuedRunsAfterRestart: runs left waiting by a daemon that stopped
+// are found interrupted by the next one (resumable), not taken for runs
+// another owner is measuring.
+func TestQueuedRunsAfterRestart(t *testing.T) {
+	safe(t, func(t *testing.T) {
+		g := openRig(t, 1, "", nil)
+		serve := func() (*web.Server, *apiClient, func()) {
+			srv, err := web.New(web.Config{Addr: "127.0.0.1:0", Bench: g.b, Store: g.st, Log: zerolog.Nop()})
+			if err != nil {
+				t.Fatal(err)
+			}
+			ctx, cancel := context.WithCancel(context.Background())
+			done := make(chan error, 1)
+			go func() { done <- srv.Serve(ctx) }()
+			return srv, &apiClient{t: t, base: strings.TrimSuffix(srv.URL(), "/")}, func() {
+				cancel()
+				select {
+				case <-done:
+				case <-time.After(15 * time.Second):
+					t.Fatal("the daemon did not stop")
+				}
+			}
+		}
+		_, api, stop := serve()
+		live := api.submit([]byte(slowPlanJSON))
+		api.waitState(live, 30*time.Second, event.Settling, event.Reading)
+		var waiting []string
+		for i := 0; i < 3; i++ {
+			waiting = append(waiting, api.submit([]byte(planJSONNamed(fmt.Sprint("left waiting ", i)))))
+		}
+		stop()
+		_, api, stop = serve()
+		defer stop()
+		for _, id := range append([]string{live}, waiting...) {
+			var in struct {
+				State    event.State
+				External bool
+			}
+			code, body := api.do("GET", "/api/runs/"+id, nil)
+			if code != 200 || json.Unmarshal(body, &in) != nil {
+				t.Fatalf("GET %s: %d %s", id, code, body)
+			}
+			if in.State != event.Interrupted || in.External {
+				t.Errorf("run %s after the restart: %s, external %v; want interrupted, this daemon's", id, in.State, in.External)
+			}
+		}
+		if code, body := api.do("POST", "/api/runs/"+waiting[0]+"/resume", []byte("{}")); code != 200 {
+			t.Fatalf("resume a run left waiting: %d %s", code, body)
+		}
+		api.waitState(waiting[0], 60*time.Second, event.Done)
+		if !t.Failed() {
+			tally.stopped.Add(1)
+		}
+	})
+}
