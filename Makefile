@@ -17,11 +17,13 @@ test:
 	$(GO) test ./...
 
 reliability:
-	@summary=$$(mktemp); \
-	ROLLOFF_RELIABILITY_SUMMARY=$$summary $(GO) test ./sweep/reliability/ -count=1 -v; \
-	status=$$?; \
-	if [ -s $$summary ]; then cat $$summary; else echo "reliability: no summary: the suite did not run to its end"; fi; \
-	rm -f $$summary; \
+	@summary=$$(mktemp); out=$$(mktemp); \
+	ROLLOFF_RELIABILITY_SUMMARY=$$summary $(GO) test ./sweep/reliability/ -count=1 -v 2>&1 | tee $$out; \
+	status=$${PIPESTATUS[0]}; \
+	skipped=$$(grep -c -- '--- SKIP: ' $$out); \
+	if [ -s $$summary ]; then echo "$$(cat $$summary), tests skipped $$skipped"; \
+	else echo "reliability: no summary: the suite did not run to its end (tests skipped $$skipped)"; fi; \
+	rm -f $$summary $$out; \
 	exit $$status
 
 fuzz:

@@ -11,8 +11,10 @@ import (
 	"net/http"
 	"net/url"
 	"path"
+	"path/filepath"
 	"strconv"
 	"strings"
+	"syscall"
 	"time"
 
 	"rolloff/sweep/event"
@@ -35,6 +37,10 @@ var files = map[string]string{
 	store.FileResponseSVG: "image/svg+xml",
 	store.FileResponsePDF: "application/pdf",
 }
+
+// RetryAfterFullS is the Retry-After, in seconds, of a submission
+// refused because the queue is full.
+const RetryAfterFullS = 30
 
 // MaxOverlayRuns is the most runs one overlay may combine.
 const MaxOverlayRuns = 8
@@ -63,7 +69,7 @@ func (s *Server) fail(w http.ResponseWriter, err error) {
 	case errors.As(err, &mbe):
 		guard.WriteError(w, http.StatusRequestEntityTooLarge, "body", fmt.Sprintf("body larger than %d bytes", mbe.Limit))
 	case errors.As(err, &fe):
-		guard.WriteError(w, http.StatusBadRequest, fe.Field, err.Error())
+		guard.WriteError(w, http.StatusBadRequest, fe.Field, s.scrub(err.Error()))
 	case errors.Is(err, sched.ErrNoPrompt):
 		guard.WriteError(w, http.StatusConflict, "prompt_id", err.Error())
 	case errors.Is(err, sched.ErrBadRange):
@@ -74,12 +80,41 @@ func (s *Server) fail(w http.ResponseWriter, err error) {
 		guard.WriteError(w, http.StatusNotFound, "id", err.Error())
 	case errors.Is(err, queue.ErrState):
 		guard.WriteError(w, http.StatusConflict, "state", err.Error())
+	case errors.Is(err, queue.ErrFull):
+		w.Header().Set("Retry-After", strconv.Itoa(RetryAfterFullS))
+		guard.WriteError(w, http.StatusTooManyRequests, "", "the queue is full: "+err.Error()+"; try again later")
 	case errors.Is(err, queue.ErrClosed):
 		guard.WriteError(w, http.StatusServiceUnavailable, "", "the daemon is shutting down")
-	default:
+	case errors.Is(err, syscall.EROFS):
 		s.log.Error().Err(err).Msg("request failed")
-		guard.WriteError(w, http.StatusInternalServerError, "", err.Error())
+		guard.WriteError(w, http.StatusInsufficientStorage, "", "the run store is on a read-only file system: nothing can be recorded")
+	case errors.Is(err, syscall.ENOSPC):
+		s.log.Error().Err(err).Msg("request failed")
+		guard.WriteError(w, http.StatusInsufficientStorage, "", "the run store's disk is full: nothing can be recorded")
+	default:
+		// The cause may name files of the machine: the log has it, the
+		// answer does not.
+		s.log.Error().Err(err).Msg("request failed")
+		guard.WriteError(w, http.StatusInternalServerError, "", "internal error; the daemon's log has the cause")
 	}
+}
+
+// scrub takes the run store's directory out of a message meant for a
+// client: the page's user needs the run id, not where the daemon keeps
+// its files.
+func (s *Server) scrub(msg string) string {
+	d, ok := s.be.(interface{ dataDir() string })
+	if !ok {
+		return msg
+	}
+	dir := d.dataDir()
+	if dir == "" {
+		return msg
+	}
+	if abs, err := filepath.Abs(dir); err == nil && abs != dir {
+		msg = strings.ReplaceAll(msg, abs, "the run store")
+	}
+	return strings.ReplaceAll(msg, dir, "the run store")
 }
 
 func writeJSON(w http.ResponseWriter, status int, v any) {
@@ -290,7 +325,9 @@ func readBody(r *http.Request) ([]byte, error) {
 
 // decodePlan reads a plan from a request body: the plan itself as JSON
 // with the plan file's field names, or {"plan_toml": "...", "file_name":
-// "..."} carrying a TOML plan file's text.
+// "..."} carrying a TOML plan file's text, or {"plan_json": "...",
+// "file_name": "..."} a JSON plan file's text (decoded here, strictly,
+// so that errors name the file and line).
 func (s *Server) decodePlan(r *http.Request) (*plan.Plan, queue.Source, error) {
 	var src queue.Source
 	data, err := readBody(r)
@@ -305,25 +342,18 @@ func (s *Server) decodePlan(r *http.Request) (*plan.Plan, queue.Source, error) {
 		return nil, src, badRequest("body", "request body: not a JSON object: %v", err)
 	}
 	var p *plan.Plan
-	if _, ok := probe["plan_toml"]; ok {
-		var up struct {
-			PlanTOML string `json:"plan_toml"`
-			FileName string `json:"file_name"`
+	_, isTOML := probe["plan_toml"]
+	_, isJSON := probe["plan_json"]
+	if isTOML || isJSON {
+		src, err = decodeUpload(data)
+		if err != nil {
+			return nil, src, err
 		}
-		dec := json.NewDecoder(bytes.NewReader(data))
-		dec.DisallowUnknownFields()
-		if err := dec.Decode(&up); err != nil {
-			return nil, src, badRequest("plan_toml", "plan upload: %v (want {\"plan_toml\": \"...\", \"file_name\": \"...\"})", err)
+		if isJSON {
+			p, err = plan.DecodeJSON(src.Name, src.Data)
+		} else {
+			p, err = plan.DecodeTOML(src.Name, src.Data)
 		}
-		name := path.Base(strings.ReplaceAll(up.FileName, "\\", "/"))
-		if up.FileName == "" || name == "." || name == "/" {
-			name = "uploaded-plan.toml"
-		}
-		if strings.EqualFold(path.Ext(name), ".json") {
-			name += ".toml" // the text is TOML whatever the file was called
-		}
-		src = queue.Source{Name: name, Data: []byte(up.PlanTOML)}
-		p, err = plan.DecodeTOML(name, src.Data)
 	} else {
 		src = queue.Source{Name: "request.json", Data: data}
 		p, err = plan.DecodeJSON("request body", data)

@@ -40,7 +40,39 @@ func New(cfg Config) (*Server, error) {
 		return nil, errors.New("web: no run store")
 	}
 	be := &bridge{b: cfg.Bench, st: cfg.Store, log: cfg.Log, tune: cfg.Sched, owned: map[string]*store.Run{}}
-	return newServer(cfg, be)
+	s, err := newServer(cfg, be)
+	if err != nil {
+		return nil, err
+	}
+	// Taken after the queue has listed the store: runs an earlier daemon
+	// left queued are found interrupted; from now on a run waiting here
+	// is listed queued.
+	release, err := cfg.Store.HoldQueue()
+	if err != nil {
+		// Runs waiting here may then look interrupted to other readers
+		// of the store; they are still run.
+		msg := "store queue lock not taken"
+		if errors.Is(err, store.ErrLocked) {
+			msg += ": another daemon keeps a queue on this store"
+		}
+		cfg.Log.Warn().Err(err).Msg(msg)
+		release = func() {}
+	}
+	be.mu.Lock()
+	be.releaseQueue = release
+	be.mu.Unlock()
+	return s, nil
+}
+
+// closeQueue lets the store's queue lock go when the server shuts down.
+func (g *bridge) closeQueue() {
+	g.mu.Lock()
+	release := g.releaseQueue
+	g.releaseQueue = nil
+	g.mu.Unlock()
+	if release != nil {
+		release()
+	}
 }
 
 // bridge implements backend with the real bench, scheduler and store.
@@ -51,7 +83,9 @@ type bridge struct {
 	tune func(*sched.Opts)
 
 	mu    sync.Mutex
-	owned map[string]*store.Run // runs this daemon holds (locked), queued or running
+	owned map[string]*store.Run // runs this daemon holds (locked) while they run
+
+	releaseQueue func() // lets the store's queue lock go
 }
 
 var _ backend = (*bridge)(nil)
@@ -64,10 +98,37 @@ func (g *bridge) Create(ctx context.Context, p *plan.Plan, src queue.Source) (st
 	if err != nil {
 		return "", err
 	}
+	// A waiting run holds no open file: the store's queue lock (held by
+	// the server) keeps it from being taken for an interrupted one, and
+	// Start claims it.
+	id := r.ID()
+	if err := r.Close(); err != nil {
+		return "", err
+	}
+	return id, nil
+}
+
+// claim returns the locked handle of run id for starting it: a run
+// waiting in the queue is claimed from the store, any other opened and
+// locked.
+func (g *bridge) claim(id string) (*store.Run, error) {
 	g.mu.Lock()
-	g.owned[r.ID()] = r
+	if r := g.owned[id]; r != nil {
+		g.mu.Unlock()
+		return r, nil
+	}
 	g.mu.Unlock()
-	return r.ID(), nil
+	r, err := g.st.Claim(id)
+	if errors.Is(err, store.ErrNotQueued) {
+		return g.own(id)
+	}
+	if err != nil {
+		return nil, err
+	}
+	g.mu.Lock()
+	g.owned[id] = r
+	g.mu.Unlock()
+	return r, nil
 }
 
 // own returns the locked handle of run id, opening and locking it when
@@ -119,7 +180,7 @@ func (g *bridge) reader(id string) (*store.Run, func(), error) {
 }
 
 func (g *bridge) Start(ctx context.Context, id string, p *plan.Plan, resume bool) (queue.Run, error) {
-	r, err := g.own(id)
+	r, err := g.claim(id)
 	if err != nil {
 		return nil, err
 	}
@@ -220,6 +281,9 @@ func (g *bridge) SetState(ctx context.Context, id string, s event.State, msg str
 		}
 	}
 	err := r.SetState(s, msg)
+	if s == event.Queued {
+		g.release(id) // waits again with no open file; Start claims it
+	}
 	if s.Ended() {
 		// Nothing will run it in this daemon: let the lock go, so that
 		// a later daemon (or the CLI) may resume it.

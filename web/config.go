@@ -40,6 +40,9 @@ type Config struct {
 	Bench *bench.Bench
 	// Store is the run store.
 	Store *store.Store
+	// MaxQueued is how many runs may wait for the bench (default
+	// queue.DefaultMaxQueued); past it a submission gets 429.
+	MaxQueued int
 	// Sched adjusts the scheduler's options of every run; may be nil.
 	Sched func(*sched.Opts)
 }

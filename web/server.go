@@ -109,7 +109,7 @@ func newServer(cfg Config, be backend) (*Server, error) {
 			guard.WriteError(w, status, "", reason.Error())
 		},
 	}
-	q, err := queue.New(s.ctx, queue.Options{Backend: be, OnEvent: s.publish, Log: cfg.Log})
+	q, err := queue.New(s.ctx, queue.Options{Backend: be, OnEvent: s.publish, Log: cfg.Log, MaxQueued: cfg.MaxQueued})
 	if err != nil {
 		ln.Close()
 		return nil, fmt.Errorf("web: %w", err)
@@ -192,6 +192,9 @@ func (s *Server) shutdown() error {
 			errs = append(errs, fmt.Errorf("stopping the run: %w", err))
 		}
 		qcancel()
+		if c, ok := s.be.(interface{ closeQueue() }); ok {
+			c.closeQueue()
+		}
 		s.cancel()
 		final := hub.NewMessage([]byte(`{"type":"closing","message":"the daemon is shutting down; the run can be resumed when it is back"}`), hub.NoSeq)
 		hctx, hcancel := context.WithTimeout(ctx, time.Second)

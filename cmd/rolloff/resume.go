@@ -15,6 +15,7 @@ import (
 	"rolloff/sweep/event"
 	"rolloff/sweep/sched"
 	"rolloff/sweep/sched/finish"
+	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/store"
 )
 
@@ -77,7 +78,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err := p.Validate(cfg.Limits.Driver()); err != nil {
 		return err
 	}
-	b, err := bench.Open(ctx, cfg, env.log)
+	b, err := onbench.Open(ctx, cfg, env.log)
 	if err != nil {
 		return err
 	}

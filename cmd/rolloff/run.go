@@ -77,7 +77,7 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return fmt.Errorf("%s: %w", pos[0], err)
 	}
-	b, err := bench.Open(ctx, cfg, env.log)
+	b, err := onbench.Open(ctx, cfg, env.log)
 	if err != nil {
 		return fmt.Errorf("--bench %s: %w", *benchPath, err)
 	}
@@ -162,11 +162,26 @@ func sweepAndReport(ctx context.Context, env *cmdEnv, b *bench.Bench, p *plan.Pl
 	if err != nil {
 		st := r.Status()
 		if st.State == event.Interrupted {
-			fmt.Fprintf(env.stdout, "interrupted after %d of %d points; continue with: rolloff resume %s\n", st.Done, st.Total, run.Dir())
+			done, total := storedCount(run, p, st.Done, st.Total)
+			fmt.Fprintf(env.stdout, "interrupted after %d of %d points; continue with: rolloff resume %s\n", done, total, run.Dir())
 		}
 		return err
 	}
 	return reportDone(env, r.Status().Done, time.Since(start), result, afterCorners)
+}
+
+// storedCount is how many points run holds and how many its plan has:
+// counted from the store and the plan, not from the scheduler's status,
+// which knows only the points of this session and may have ended before
+// its first progress report.
+func storedCount(run *store.Run, p *plan.Plan, done, total int) (int, int) {
+	if pts, err := run.Points(); err == nil {
+		done = max(done, len(pts))
+	}
+	if fs, err := p.Freqs(); err == nil {
+		total = max(total, len(fs))
+	}
+	return done, total
 }
 
 // reportDone prints a finished run's point count, time and corners, then

@@ -14,6 +14,7 @@ import (
 	"rolloff/sweep/event"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/queue"
+	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/store"
 	"rolloff/web"
 )
@@ -90,8 +91,9 @@ func runServe(ctx context.Context, env *cmdEnv, args []string) error {
 	addr := fs.String("addr", web.DefaultAddr, "listen address host:port; any other than loopback requires a token")
 	data := fs.String("data", "", "run store directory (default: the daemon's data directory)")
 	token := fs.String("token", "", "access token required on every API request (default: none on loopback, generated otherwise)")
+	maxQueued := fs.Int("max-queued", queue.DefaultMaxQueued, "most runs waiting for the bench; a submission past it is answered 429 with Retry-After")
 	fs.Usage = func() {
-		fmt.Fprintf(env.stderr, "usage: rolloff serve --bench BENCH [--addr %s] [--data DIR] [--token T]\n\n", web.DefaultAddr)
+		fmt.Fprintf(env.stderr, "usage: rolloff serve --bench BENCH [--addr %s] [--data DIR] [--token T] [--max-queued N]\n\n", web.DefaultAddr)
 		fs.PrintDefaults()
 	}
 	if err := fs.Parse(args); err != nil {
@@ -104,6 +106,9 @@ func runServe(ctx context.Context, env *cmdEnv, args []string) error {
 	if *benchPath == "" {
 		fs.Usage()
 		return &exitError{code: 2, err: errors.New("--bench is required (a bench profile file, or \"demo\")")}
+	}
+	if *maxQueued < 1 || *maxQueued > 100000 {
+		return &exitError{code: 2, err: fmt.Errorf("--max-queued %d: want 1..100000", *maxQueued)}
 	}
 	if *token == "" {
 		*token = os.Getenv("ROLLOFF_TOKEN")
@@ -130,14 +135,14 @@ func runServe(ctx context.Context, env *cmdEnv, args []string) error {
 		if lerr != nil {
 			return fmt.Errorf("--bench: %w", lerr)
 		}
-		b, err = bench.Open(ctx, cfg, env.log)
+		b, err = onbench.Open(ctx, cfg, env.log)
 	}
 	if err != nil {
 		return fmt.Errorf("--bench %s: %w", *benchPath, err)
 	}
 	defer b.Close()
 
-	srv, err := web.New(web.Config{Addr: *addr, Token: *token, Bench: b, Store: st, Log: env.log, Version: serveVersion()})
+	srv, err := web.New(web.Config{Addr: *addr, Token: *token, Bench: b, Store: st, Log: env.log, Version: serveVersion(), MaxQueued: *maxQueued})
 	if err != nil {
 		return err
 	}

@@ -13,6 +13,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"sync"
 
 	toml "github.com/pelletier/go-toml/v2"
 	"github.com/pelletier/go-toml/v2/unstable"
@@ -27,6 +28,8 @@ type source struct {
 	file  string
 	lines map[string]int
 	raw   map[string]string
+	// elems holds the lines of array elements, in order, per array key.
+	elems map[string][]int32
 }
 
 // line returns the line of field, or of its nearest enclosing key or
@@ -37,6 +40,9 @@ func (s *source) line(field string) int {
 	}
 	for f := field; f != ""; f = parentKey(f) {
 		if l, ok := s.lines[f]; ok {
+			return l
+		}
+		if l, ok := s.elemLine(f); ok {
 			return l
 		}
 	}
@@ -103,12 +109,18 @@ func DecodeTOML(name string, data []byte) (*Plan, error) {
 	return p, nil
 }
 
+// parsers recycles the low-level TOML parsers and their node arenas.
+var parsers = sync.Pool{New: func() any { return new(unstable.Parser) }}
+
 // indexTOML parses the document once with the low-level parser to learn
 // the line and raw text of every key, and refuses a key given twice.
 func indexTOML(name string, data []byte) (*source, error) {
 	src := &source{file: name, lines: map[string]int{}, raw: map[string]string{}}
-	var p unstable.Parser
+	p := parsers.Get().(*unstable.Parser)
+	defer parsers.Put(p)
 	p.Reset(data)
+	defer p.Reset(nil) // keep the arena, not the document
+	lines := newLineIndex(data)
 	prefix := ""
 	arrays := map[string]int{}
 	var dup error
@@ -120,7 +132,7 @@ func indexTOML(name string, data []byte) (*source, error) {
 			k := it.Node()
 			parts = append(parts, string(k.Data))
 			if line == 0 {
-				line = p.Shape(k.Raw).Start.Line
+				line = lines.line(int(k.Raw.Offset))
 			}
 		}
 		return strings.Join(parts, "."), line
@@ -137,13 +149,14 @@ func indexTOML(name string, data []byte) (*source, error) {
 				if c.Kind == unstable.Comment {
 					continue
 				}
-				el := key + "[" + strconv.Itoa(i) + "]"
 				l := line
 				if c.Raw.Length > 0 {
-					l = p.Shape(c.Raw).Start.Line
+					l = lines.line(int(c.Raw.Offset))
 				}
-				src.lines[el] = l
-				value(el, l, c)
+				src.setElemLine(key, i, l)
+				if c.Kind == unstable.Array || c.Kind == unstable.InlineTable {
+					value(key+"["+strconv.Itoa(i)+"]", l, c)
+				}
 				i++
 			}
 		case unstable.InlineTable:
@@ -158,7 +171,7 @@ func indexTOML(name string, data []byte) (*source, error) {
 			}
 		default:
 			if v.Raw.Length > 0 {
-				src.raw[key] = string(p.Raw(v.Raw))
+				src.setRaw(key, string(p.Raw(v.Raw)))
 			}
 		}
 	}
@@ -381,10 +394,30 @@ func DecodeJSON(name string, data []byte) (*Plan, error) {
 	if len(data) > MaxFileBytes {
 		return nil, tooLarge(name, len(data))
 	}
-	w := &jsonWalker{data: data, src: &source{file: name, lines: map[string]int{}, raw: map[string]string{}}}
+	p, err := decodeJSON(name, data, false)
+	if errors.Is(err, errSlowPath) {
+		p, err = decodeJSON(name, data, true)
+	}
+	if err != nil {
+		return nil, err
+	}
+	p.Defaults()
+	return p, nil
+}
+
+// errSlowPath makes DecodeJSON walk the document again token by token:
+// the fast path for arrays of numbers met something else.
+var errSlowPath = errors.New("plan: not a plain array of numbers")
+
+// decodeJSON walks the document once, checking every key and type
+// against the plan's schema and filling the plan as it goes.
+func decodeJSON(name string, data []byte, slow bool) (*Plan, error) {
+	w := &jsonWalker{data: data, lines: newLineIndex(data), slow: slow,
+		src: &source{file: name, lines: map[string]int{}, raw: map[string]string{}}}
 	w.dec = json.NewDecoder(bytes.NewReader(data))
 	w.dec.UseNumber()
-	if err := w.walk(reflect.TypeFor[Plan](), ""); err != nil {
+	p := new(Plan)
+	if err := w.walk(reflect.ValueOf(p).Elem(), ""); err != nil {
 		return nil, err
 	}
 	if tok, err := w.dec.Token(); err != io.EOF {
@@ -395,29 +428,23 @@ func DecodeJSON(name string, data []byte) (*Plan, error) {
 		return nil, &FieldError{File: name, Line: w.line(), Value: v,
 			Allowed: "trailing data after the plan object (one JSON object only)"}
 	}
-	p := new(Plan)
-	dec := json.NewDecoder(bytes.NewReader(data))
-	dec.DisallowUnknownFields()
-	if err := dec.Decode(p); err != nil {
-		// The walk above has checked keys and types; this is a backstop.
-		return nil, &FieldError{File: name, Allowed: err.Error()}
-	}
 	p.src = w.src
-	p.Defaults()
 	return p, nil
 }
 
 type jsonWalker struct {
-	data []byte
-	dec  *json.Decoder
-	src  *source
+	data  []byte
+	lines lineIndex
+	dec   *json.Decoder
+	src   *source
+	slow  bool // read arrays of numbers token by token too
 }
 
 // line is the line of the decoder's position.
 func (w *jsonWalker) line() int {
 	off := int(w.dec.InputOffset())
 	off = min(max(off, 0), len(w.data))
-	return 1 + bytes.Count(w.data[:off], []byte{'\n'})
+	return w.lines.line(off)
 }
 
 func (w *jsonWalker) token(field string) (json.Token, error) {
@@ -470,8 +497,13 @@ func dotted(prefix, k string) string {
 	return prefix + "." + k
 }
 
-// walk checks one value of type t at field against the plan's schema.
-func (w *jsonWalker) walk(t reflect.Type, field string) error {
+// walk checks one value at field against the plan's schema and stores
+// it in v.
+func (w *jsonWalker) walk(v reflect.Value, field string) error {
+	t := v.Type()
+	if !w.slow && t.Kind() == reflect.Slice && t.Elem().Kind() == reflect.Float64 {
+		return w.numbers(v, field)
+	}
 	tok, err := w.token(field)
 	if err != nil {
 		return err
@@ -506,7 +538,7 @@ func (w *jsonWalker) walk(t reflect.Type, field string) error {
 					Allowed: fmt.Sprintf("key given twice (first on line %d)", first)}
 			}
 			w.src.lines[key] = line
-			if err := w.walk(f.Type, key); err != nil {
+			if err := w.walk(v.FieldByIndex(f.Index), key); err != nil {
 				return err
 			}
 		}
@@ -522,10 +554,14 @@ func (w *jsonWalker) walk(t reflect.Type, field string) error {
 					Allowed: fmt.Sprintf("at most %d entries", MaxPoints)}
 			}
 			el := field + "[" + strconv.Itoa(i) + "]"
-			w.src.lines[el] = w.line()
-			if err := w.walk(t.Elem(), el); err != nil {
+			w.src.setElemLine(field, i, w.line())
+			v.Set(reflect.Append(v, reflect.Zero(t.Elem())))
+			if err := w.walk(v.Index(i), el); err != nil {
 				return err
 			}
+		}
+		if v.IsNil() {
+			v.Set(reflect.MakeSlice(t, 0, 0))
 		}
 		_, err := w.token(field) // ']'
 		return err
@@ -534,37 +570,44 @@ func (w *jsonWalker) walk(t reflect.Type, field string) error {
 		if !ok {
 			return w.typeErr(field, tok, "a number")
 		}
-		w.src.raw[field] = string(n)
-		if _, err := strconv.ParseFloat(string(n), 64); err != nil {
+		w.src.setRaw(field, string(n))
+		f, err := strconv.ParseFloat(string(n), 64)
+		if err != nil {
 			return &FieldError{File: w.src.file, Line: w.line(), Field: field, Value: string(n),
 				Allowed: "number out of range"}
 		}
+		v.SetFloat(f)
 		return nil
 	case reflect.Int:
 		n, ok := tok.(json.Number)
 		if !ok {
 			return w.typeErr(field, tok, "an integer")
 		}
-		w.src.raw[field] = string(n)
-		if _, err := strconv.ParseInt(string(n), 10, 64); err != nil {
+		w.src.setRaw(field, string(n))
+		i, err := strconv.ParseInt(string(n), 10, 64)
+		if err != nil || v.OverflowInt(i) {
 			msg := "want an integer"
 			if _, ferr := strconv.ParseFloat(string(n), 64); ferr == nil && !strings.ContainsAny(string(n), ".eE") {
 				msg = "integer out of range"
 			}
 			return &FieldError{File: w.src.file, Line: w.line(), Field: field, Value: string(n), Allowed: msg}
 		}
+		v.SetInt(i)
 		return nil
 	case reflect.String:
 		s, ok := tok.(string)
 		if !ok {
 			return w.typeErr(field, tok, "a string")
 		}
-		w.src.raw[field] = strconv.Quote(s)
+		w.src.setRaw(field, strconv.Quote(s))
+		v.SetString(s)
 		return nil
 	case reflect.Bool:
-		if _, ok := tok.(bool); !ok {
+		b, ok := tok.(bool)
+		if !ok {
 			return w.typeErr(field, tok, "true or false")
 		}
+		v.SetBool(b)
 		return nil
 	}
 	return &FieldError{File: w.src.file, Line: w.line(), Field: field, Allowed: "unsupported field type " + t.String()}

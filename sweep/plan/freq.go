@@ -147,6 +147,26 @@ func (p *Plan) Freqs() ([]Freq, error) {
 	return out, nil
 }
 
+// pointCount says a point count in a message: in full up to a billion,
+// beyond that in three significant digits (a step of 1e-300 Hz would
+// otherwise print a count of 300 digits).
+func pointCount(n float64) string {
+	if n <= 1e9 {
+		return fmt.Sprintf("%.0f", n)
+	}
+	return fmt.Sprintf("about %.3g", n)
+}
+
+// roundUp3 formats x > 0 rounded up to three significant digits, for a
+// lower bound in a message.
+func roundUp3(x float64) string {
+	if !(x > 0) || math.IsInf(x, 0) {
+		return fmtFloat(x)
+	}
+	e := math.Pow(10, math.Floor(math.Log10(x))-2)
+	return strconv.FormatFloat(math.Ceil(x/e-1e-9)*e, 'g', 3, 64)
+}
+
 // check refuses a plan whose frequencies cannot be computed or are more
 // than MaxPoints, and returns how many there are at most, without
 // computing them.
@@ -164,7 +184,7 @@ func (p *Plan) check() (int, error) {
 		return nil
 	}
 	tooMany := func(field, val string, n float64) error {
-		return p.fieldErr(field, val, fmt.Sprintf("gives %.0f points; at most %d", n, MaxPoints))
+		return p.fieldErr(field, val, fmt.Sprintf("gives %s points; at most %d", pointCount(n), MaxPoints))
 	}
 	switch f.Spacing {
 	case SpacingLog:
@@ -209,7 +229,10 @@ func (p *Plan) check() (int, error) {
 			}
 			n := math.Floor((f.StopHz-f.StartHz)/f.StepHz+relEps) + 2
 			if n > MaxPoints {
-				return 0, tooMany("frequencies.step_hz", fmtFloat(f.StepHz), n)
+				minStep := (f.StopHz - f.StartHz) / (MaxPoints - 2)
+				return 0, p.fieldErr("frequencies.step_hz", fmtFloat(f.StepHz),
+					fmt.Sprintf("gives %s points; at most %d, so step_hz must be ≥ %s Hz from %s to %s Hz",
+						pointCount(n), MaxPoints, roundUp3(minStep), fmtFloat(f.StartHz), fmtFloat(f.StopHz)))
 			}
 			return int(n), nil
 		}

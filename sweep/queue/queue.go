@@ -25,7 +25,12 @@ var (
 	ErrNotFound = errors.New("queue: no such run")
 	ErrState    = errors.New("queue: not possible in the run's state")
 	ErrClosed   = errors.New("queue: closed")
+	// ErrFull refuses a submission while MaxQueued runs wait already.
+	ErrFull = errors.New("queue: full")
 )
+
+// DefaultMaxQueued is how many runs may wait for the bench by default.
+const DefaultMaxQueued = 64
 
 // Run is what the queue needs of a running sweep: the scheduler's run.
 type Run interface {
@@ -121,6 +126,10 @@ type Options struct {
 	// RescanEvery ticks (default 20).
 	FollowEvery time.Duration
 	RescanEvery int
+	// MaxQueued is how many runs may wait for the bench, the live one not
+	// counted (default DefaultMaxQueued); a submission or resume past it
+	// is refused with ErrFull.
+	MaxQueued int
 }
 
 type entry struct {
@@ -167,6 +176,9 @@ func New(ctx context.Context, opts Options) (*Queue, error) {
 	}
 	if opts.RescanEvery <= 0 {
 		opts.RescanEvery = 20
+	}
+	if opts.MaxQueued <= 0 {
+		opts.MaxQueued = DefaultMaxQueued
 	}
 	q := &Queue{opts: opts, entries: map[string]*entry{}, wake: make(chan struct{}, 1), done: make(chan struct{})}
 	q.ctx, q.cancel = context.WithCancel(context.Background())
@@ -286,6 +298,10 @@ func (q *Queue) follow() {
 func (q *Queue) Submit(ctx context.Context, p *plan.Plan, src Source) (string, error) {
 	q.mu.Lock()
 	closed := q.closed
+	if !closed && len(q.waiting)+q.creating >= q.opts.MaxQueued {
+		q.mu.Unlock()
+		return "", fmt.Errorf("%d runs wait for the bench already (at most %d): %w", q.opts.MaxQueued, q.opts.MaxQueued, ErrFull)
+	}
 	q.creating++
 	q.mu.Unlock()
 	defer func() {
@@ -426,6 +442,10 @@ func (q *Queue) Resume(ctx context.Context, id string) error {
 	if q.closed {
 		q.mu.Unlock()
 		return ErrClosed
+	}
+	if len(q.waiting)+q.creating >= q.opts.MaxQueued {
+		q.mu.Unlock()
+		return fmt.Errorf("%d runs wait for the bench already (at most %d): %w", q.opts.MaxQueued, q.opts.MaxQueued, ErrFull)
 	}
 	e.resume = true
 	e.info.State = event.Queued

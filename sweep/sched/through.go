@@ -29,7 +29,7 @@ func LoadThrough(st *store.Store, p *plan.Plan) ([]point.Point, error) {
 	r, err := st.OpenRun(id)
 	if err != nil {
 		if errors.Is(err, store.ErrNotFound) {
-			return nil, bad("no such run in " + st.Dir())
+			return nil, bad("no such run in the run store")
 		}
 		return nil, bad(err.Error())
 	}

@@ -100,7 +100,7 @@ func (r *Run) Locked() bool {
 func (r *Run) path(name string) string { return filepath.Join(r.dir, name) }
 
 func (r *Run) loadMeta() (Meta, error) {
-	data, err := os.ReadFile(r.path(FileMeta))
+	data, err := readRegular(r.path(FileMeta))
 	if err != nil {
 		if errors.Is(err, fs.ErrNotExist) {
 			return Meta{}, fmt.Errorf("store: run %s: no %s: %w", r.id, FileMeta, ErrNotFound)
@@ -231,8 +231,8 @@ func truncateSync(path string, size int64) error {
 // readFile reads a run file; limit ≥ 0 reads only that many bytes
 // (what this handle knows to be complete).
 func (r *Run) readFile(name string, limit int64) ([]byte, error) {
-	f, err := os.Open(r.path(name))
-	if errors.Is(err, fs.ErrNotExist) {
+	f, err := openRegular(r.dir, r.id, name)
+	if errors.Is(err, ErrNotFound) && !errors.Is(err, ErrNotRegular) {
 		return nil, nil
 	}
 	if err != nil {
@@ -699,7 +699,7 @@ func (r *Run) Events() ([]event.Event, error) {
 // Plan decodes the stored plan file (defaults filled, not validated).
 func (r *Run) Plan() (*plan.Plan, error) {
 	m := r.Meta()
-	data, err := os.ReadFile(r.path(m.PlanFile))
+	data, err := readRegular(r.path(m.PlanFile))
 	if err != nil {
 		return nil, fmt.Errorf("store: run %s: %w", r.id, err)
 	}
@@ -764,18 +764,7 @@ func (r *Run) OpenFile(name string) (*os.File, error) {
 	if err := checkName(name, false); err != nil {
 		return nil, err
 	}
-	f, err := os.OpenInRoot(r.dir, name)
-	if err != nil {
-		if errors.Is(err, fs.ErrNotExist) {
-			return nil, fmt.Errorf("store: run %s: %s: %w", r.id, name, ErrNotFound)
-		}
-		return nil, fmt.Errorf("store: run %s: %w", r.id, err)
-	}
-	if st, err := f.Stat(); err != nil || !st.Mode().IsRegular() {
-		f.Close()
-		return nil, fmt.Errorf("store: run %s: %s is not a regular file", r.id, name)
-	}
-	return f, nil
+	return openRegular(r.dir, r.id, name)
 }
 
 // Close releases the run: closes its files and, for the owner, the lock.

@@ -338,16 +338,19 @@ func (s *Store) Create(o CreateOpts) (*Run, error) {
 		}
 	}
 	if err := syncDir(s.dir); err != nil {
+		os.RemoveAll(dir)
 		lockF.Close()
 		return nil, fmt.Errorf("store: create: %w", err)
 	}
 	r := &Run{store: s, id: id, dir: dir, log: s.log, meta: meta}
 	if err := r.own(lockF); err != nil {
+		os.RemoveAll(dir) // still locked: never listed half made
 		lockF.Close()
 		return nil, err
 	}
 	if err := r.appendEvent(event.Event{Time: now, Type: event.TypeState, State: state,
 		Message: "created"}, true); err != nil {
+		os.RemoveAll(dir)
 		r.Close()
 		return nil, err
 	}
@@ -433,6 +436,11 @@ func (s *Store) OpenRun(id string) (*Run, error) {
 		return nil, err
 	}
 	lockF, err := tryLock(filepath.Join(dir, FileLock))
+	if err == nil && s.waiting(m.State) {
+		// Waiting in a daemon's queue: not interrupted, read only.
+		lockF.Close()
+		err = ErrLocked
+	}
 	switch {
 	case errors.Is(err, ErrLocked):
 		// A live owner: read only; its files' ends may be in flight.
@@ -513,15 +521,15 @@ func (s *Store) summary(id string) Summary {
 	}
 	sum.Name, sum.Created, sum.Updated, sum.State, sum.Message = m.Name, m.Created, m.Updated, m.State, m.Message
 	sum.Plan, sum.PlanPoints = m.Plan, m.Plan.Points
-	if !m.State.Ended() && !r.liveOwner() {
+	if !m.State.Ended() && !r.liveOwner() && !s.waiting(m.State) {
 		sum.State = event.Interrupted
 	}
-	if data, err := os.ReadFile(filepath.Join(r.dir, FilePoints)); err == nil {
+	if data, err := readRegular(filepath.Join(r.dir, FilePoints)); err == nil {
 		sum.Points = countLines(data)
 	} else if !errors.Is(err, fs.ErrNotExist) {
 		sum.Err = err.Error()
 	}
-	if data, err := os.ReadFile(filepath.Join(r.dir, FileResult)); err == nil {
+	if data, err := readRegular(filepath.Join(r.dir, FileResult)); err == nil {
 		sum.LowHz, sum.HighHz = corners(data)
 	}
 	return sum

@@ -149,10 +149,47 @@ func IsLoopback(host string) bool {
 }
 
 // HostAllowed reports whether a request's Host header names this daemon:
-// its own listening host, localhost or a loopback literal, with its port.
+// its own listening host, localhost or a loopback literal, with its port
+// (left out when it is plain http's default, 80, as browsers do).
 func (g *Guard) HostAllowed(hostport string) bool {
+	return g.hostAllowed(hostport, false)
+}
+
+// defaultPort is a scheme's default port, which a browser leaves out of
+// Host and Origin: 443 for https, 80 for http.
+func defaultPort(tls bool) string {
+	if tls {
+		return "443"
+	}
+	return "80"
+}
+
+// splitHost splits a Host header value into host and port, the port ""
+// when it is left out.
+func splitHost(hostport string) (host, port string, ok bool) {
 	host, port, err := net.SplitHostPort(hostport)
-	if err != nil || port != g.port {
+	if err == nil {
+		return host, port, port != ""
+	}
+	if strings.HasPrefix(hostport, "[") && strings.HasSuffix(hostport, "]") {
+		return hostport[1 : len(hostport)-1], "", true
+	}
+	if hostport == "" || strings.ContainsAny(hostport, ":[]") {
+		return "", "", false
+	}
+	return hostport, "", true
+}
+
+// hostAllowed is HostAllowed for a request over TLS or not.
+func (g *Guard) hostAllowed(hostport string, tls bool) bool {
+	host, port, ok := splitHost(hostport)
+	if !ok {
+		return false
+	}
+	if port == "" {
+		port = defaultPort(tls)
+	}
+	if port != g.port {
 		return false
 	}
 	host = strings.ToLower(host)
@@ -174,7 +211,40 @@ func (g *Guard) OriginAllowed(origin, host string) bool {
 	if origin == "" {
 		return true
 	}
-	return origin == "http://"+strings.ToLower(host)
+	return g.originAllowed(origin, host, false)
+}
+
+// originAllowed compares origin with scheme://host, the scheme's default
+// port given or left out on either side.
+func (g *Guard) originAllowed(origin, host string, tls bool) bool {
+	scheme := "http://"
+	if tls {
+		scheme = "https://"
+	}
+	rest, ok := strings.CutPrefix(origin, scheme)
+	if !ok {
+		return false
+	}
+	norm := func(hp string) (string, bool) {
+		h, p, ok := splitHost(strings.ToLower(hp))
+		if !ok {
+			return "", false
+		}
+		if p == "" {
+			p = defaultPort(tls)
+		}
+		return net.JoinHostPort(h, p), true
+	}
+	a, ok1 := norm(rest)
+	b, ok2 := norm(host)
+	return ok1 && ok2 && a == b
+}
+
+// CrossSite reports whether a browser marked r as sent by another site
+// (Fetch Metadata, Sec-Fetch-Site: cross-site): an <img> or a script
+// of any web page aimed at the daemon.
+func CrossSite(r *http.Request) bool {
+	return strings.EqualFold(strings.TrimSpace(r.Header.Get("Sec-Fetch-Site")), "cross-site")
 }
 
 // TokenOK reports whether r carries the token (header, or the websocket
@@ -236,12 +306,16 @@ func IsUpgrade(r *http.Request) bool {
 }
 
 // Wrap returns next behind the checks, in this order: Host (403, before
-// routing), method (only GET, HEAD and POST; 405), Origin on POST and on
+// routing), method (only GET, HEAD and POST; 405), Sec-Fetch-Site
+// cross-site on /api (403), Origin on POST and on
 // websocket upgrades (403), token on /api (401), Content-Type on POST
 // (application/json, 415) and body size (413).
 func (g *Guard) Wrap(next http.Handler) http.Handler {
 	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
-		if !g.HostAllowed(r.Host) {
+		// No response of the daemon may be read by another origin's
+		// page, not even as an image (Fetch, Cross-Origin-Resource-Policy).
+		w.Header().Set("Cross-Origin-Resource-Policy", "same-origin")
+		if !g.hostAllowed(r.Host, r.TLS != nil) {
 			WriteError(w, http.StatusForbidden, "host", fmt.Sprintf("host %q is not this daemon's address", clip(r.Host)))
 			return
 		}
@@ -254,9 +328,15 @@ func (g *Guard) Wrap(next http.Handler) http.Handler {
 			WriteError(w, http.StatusMethodNotAllowed, "method", fmt.Sprintf("method %s not allowed", clip(r.Method)))
 			return
 		}
+		if strings.HasPrefix(r.URL.Path, "/api/") && CrossSite(r) {
+			// Another site's page asked: refuse before any work (an
+			// overlay costs CPU; a 404 or 200 would tell what runs exist).
+			WriteError(w, http.StatusForbidden, "sec-fetch-site", "requests from another site are refused")
+			return
+		}
 		if isStateChange(r) || IsUpgrade(r) {
 			origin := r.Header.Get("Origin")
-			if !g.OriginAllowed(origin, r.Host) {
+			if origin != "" && !g.originAllowed(origin, r.Host, r.TLS != nil) {
 				WriteError(w, http.StatusForbidden, "origin", fmt.Sprintf("origin %q is not this daemon's own", clip(origin)))
 				return
 			}
