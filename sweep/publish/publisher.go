@@ -69,6 +69,9 @@ type Publisher struct {
 	runs      map[string]*runPub
 	retained  map[string]*retainedMsg // by topic
 	stopping  bool
+
+	// Owned by the loop goroutine.
+	dirMod, dirListed time.Time
 }
 
 // runPub is what the publisher knows of one run.
@@ -87,6 +90,10 @@ type runPub struct {
 	blocks  int  // full blocks set
 	partLen int  // points in the last partial block set
 	partAt  time.Time
+	// quietScans counts the looks at the run since it ended; after
+	// quietAfter of them it is not looked at again (an ended run does
+	// not change; the wait is for a late result.json).
+	quietScans int
 	count   int // points stored, for a run whose points are not read
 	// listedUpdated is meta.json's time when the run was found
 	// interrupted at the start.
@@ -353,13 +360,27 @@ func (p *Publisher) acker() {
 	}
 }
 
-// send hands the client what is due: retained messages first, then
-// points up to the window.
+// send hands the client what is due: points up to the window first
+// (a block never reaches a receiver before the live copies of its
+// points), then the retained messages.
 func (p *Publisher) send() {
 	p.mu.Lock()
 	defer p.mu.Unlock()
 	if !p.connected || p.stopping {
 		return
+	}
+	for _, r := range p.sortedRuns() {
+		for r.points && r.next < len(r.pts) && p.inflight < p.cfg.Window {
+			pt := r.pts[r.next]
+			b, err := json.Marshal(Point{Schema: Schema, Bench: p.cfg.BenchID, Run: r.id, Seq: pt.Seq, Point: pt, Sent: time.Now().UTC()})
+			if err != nil {
+				p.cfg.Log.Error().Err(err).Str("run", r.id).Int("seq", pt.Seq).Msg("point not encodable; skipped")
+				r.acked, r.next = r.acked+1, r.next+1
+				continue
+			}
+			p.handOver(ackItem{tok: p.client.Publish(RunTopic(p.cfg.BenchID, r.id, TopicPoints), 1, false, b), run: r, index: r.next})
+			r.next++
+		}
 	}
 	topics := make([]string, 0, len(p.retained))
 	for t, m := range p.retained {
@@ -375,19 +396,6 @@ func (p *Publisher) send() {
 		m := p.retained[t]
 		m.sent = true
 		p.handOver(ackItem{tok: p.client.Publish(t, 1, true, m.payload), ret: m})
-	}
-	for _, r := range p.sortedRuns() {
-		for r.points && r.next < len(r.pts) && p.inflight < p.cfg.Window {
-			pt := r.pts[r.next]
-			b, err := json.Marshal(Point{Schema: Schema, Bench: p.cfg.BenchID, Run: r.id, Seq: pt.Seq, Point: pt, Sent: time.Now().UTC()})
-			if err != nil {
-				p.cfg.Log.Error().Err(err).Str("run", r.id).Int("seq", pt.Seq).Msg("point not encodable; skipped")
-				r.acked, r.next = r.acked+1, r.next+1
-				continue
-			}
-			p.handOver(ackItem{tok: p.client.Publish(RunTopic(p.cfg.BenchID, r.id, TopicPoints), 1, false, b), run: r, index: r.next})
-			r.next++
-		}
 	}
 }
 
@@ -459,7 +467,7 @@ func (p *Publisher) track(id string, points bool) {
 
 // scan reads what changed in the store since the last look.
 func (p *Publisher) scan() {
-	if p.cfg.Run == "" {
+	if p.cfg.Run == "" && p.storeChanged() {
 		ents, err := os.ReadDir(p.cfg.StoreDir)
 		if err == nil {
 			for _, e := range ents {
@@ -478,7 +486,9 @@ func (p *Publisher) scan() {
 		if r.skip {
 			continue
 		}
-		p.scanRun(r)
+		if r.quietScans < quietAfter {
+			p.scanRun(r)
+		}
 		if r.meta.ID == "" {
 			continue
 		}
@@ -500,6 +510,21 @@ func (p *Publisher) scan() {
 	}
 	b, _ := json.Marshal(st)
 	p.setRetainedLocked(StatusTopic(p.cfg.BenchID), b)
+}
+
+// storeChanged reports whether the store directory may have new runs:
+// its modification time moved (a run is renamed into place), or two
+// seconds have passed since the last listing.
+func (p *Publisher) storeChanged() bool {
+	fi, err := os.Stat(p.cfg.StoreDir)
+	if err != nil {
+		return false
+	}
+	if fi.ModTime().Equal(p.dirMod) && time.Since(p.dirListed) < 2*time.Second {
+		return false
+	}
+	p.dirMod, p.dirListed = fi.ModTime(), time.Now()
+	return true
 }
 
 // state is the run's state: meta.json's, or interrupted for a run found
@@ -560,11 +585,20 @@ func (p *Publisher) scanRun(r *runPub) {
 		Created: m.Created, Updated: m.Updated, Points: n, PlanPoints: m.Plan.Points, Plan: m.Plan})
 	p.setRetainedLocked(RunTopic(p.cfg.BenchID, r.id, TopicState), b)
 	p.setBlocksLocked(r)
+	if r.meta.State.Final() {
+		r.quietScans++
+		if result != nil || r.result {
+			r.quietScans = quietAfter
+		}
+	}
 	if result != nil {
 		r.result = true
 		p.setRetainedLocked(RunTopic(p.cfg.BenchID, r.id, TopicResult), result)
 	}
 }
+
+// quietAfter is how many looks an ended run gets.
+const quietAfter = 20
 
 // BlockEvery is how often the last, partial block of a run is set
 // again while points arrive.
@@ -600,13 +634,16 @@ func (p *Publisher) setBlocksLocked(r *runPub) {
 // readPoints reads the complete lines appended to points.jsonl since
 // the last call. A line still being written is left for the next call.
 func (p *Publisher) readPoints(r *runPub, path string) []point.Point {
+	fi, err := os.Stat(path)
+	if err != nil || fi.Size() == r.offset {
+		return nil
+	}
 	f, err := os.Open(path)
 	if err != nil {
 		return nil
 	}
 	defer f.Close()
-	fi, err := f.Stat()
-	if err != nil {
+	if fi, err = f.Stat(); err != nil {
 		return nil
 	}
 	if fi.Size() < r.offset {

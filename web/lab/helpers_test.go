@@ -86,13 +86,17 @@ func startLab(t testing.TB, b publish.Broker) *Lab {
 }
 
 // startBench starts a publisher for a new store; stopped at the end.
-func startBench(t testing.TB, b publish.Broker, id string) (*publish.Publisher, *store.Store) {
+func startBench(t testing.TB, b publish.Broker, id string, poll ...time.Duration) (*publish.Publisher, *store.Store) {
 	t.Helper()
 	st, err := store.Open(filepath.Join(t.TempDir(), "runs"))
 	if err != nil {
 		t.Fatal(err)
 	}
-	p, err := publish.Start(publish.Config{Broker: b, BenchID: id, StoreDir: st.Dir(), Poll: 20 * time.Millisecond, Log: zerolog.Nop()})
+	every := 20 * time.Millisecond
+	if len(poll) > 0 {
+		every = poll[0]
+	}
+	p, err := publish.Start(publish.Config{Broker: b, BenchID: id, StoreDir: st.Dir(), Poll: every, Log: zerolog.Nop()})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -82,7 +82,7 @@ func Start(t testing.TB, o Opts) *Broker {
 		// "mosquitto", which could not read the test's files).
 		fmt.Fprintf(&conf, "user %s\n", u.Username)
 	}
-	fmt.Fprintf(&conf, "persistence false\nlog_dest stderr\nlog_type error\nlog_type warning\nlog_type notice\nlog_timestamp_format %%H:%%M:%%S\nlistener %d 127.0.0.1\n", b.port)
+	fmt.Fprintf(&conf, "persistence false\nset_tcp_nodelay true\nlog_dest stderr\nlog_type error\nlog_type warning\nlog_type notice\nlog_timestamp_format %%H:%%M:%%S\nlistener %d 127.0.0.1\n", b.port)
 	if o.TLS {
 		b.CAFile = b.makeCerts()
 		fmt.Fprintf(&conf, "cafile %s\ncertfile %s\nkeyfile %s\n", b.CAFile,
