@@ -90,6 +90,7 @@ func runServe(ctx context.Context, env *cmdEnv, args []string) error {
 	addr := fs.String("addr", web.DefaultAddr, "listen address host:port; any other than loopback requires a token")
 	data := fs.String("data", "", "run store directory (default: the daemon's data directory)")
 	token := fs.String("token", "", "access token required on every API request (default: none on loopback, generated otherwise)")
+	bf := addBrokerFlags(fs, true)
 	fs.Usage = func() {
 		fmt.Fprintf(env.stderr, "usage: rolloff serve --bench BENCH [--addr %s] [--data DIR] [--token T]\n\n", web.DefaultAddr)
 		fs.PrintDefaults()
@@ -121,6 +122,11 @@ func runServe(ctx context.Context, env *cmdEnv, args []string) error {
 		return fmt.Errorf("--data %s: %w", dir, err)
 	}
 	st.SetLogger(env.log)
+	stopPub, err := bf.startPublisher(env, st.Dir(), *benchPath, 0)
+	if err != nil {
+		return err
+	}
+	defer stopPub(2 * time.Second)
 
 	var b *bench.Bench
 	if *benchPath == "demo" {

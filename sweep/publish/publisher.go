@@ -34,7 +34,8 @@ type Config struct {
 	Run string
 	// Recent is how many runs already in the store when the publisher
 	// starts have their state and result published (default 5; their
-	// points only when they have not ended).
+	// points only when they have not ended). Negative: none of them,
+	// only runs that appear later.
 	Recent int
 	// Poll is how often the store is looked at (default 100 ms); Notify
 	// makes the publisher look at once.
@@ -70,6 +71,8 @@ type Publisher struct {
 	retained  map[string]*retainedMsg // by topic
 	stopping  bool
 
+	rounds int // looks at the store and sends completed
+
 	// Owned by the loop goroutine.
 	dirMod, dirListed time.Time
 }
@@ -94,7 +97,7 @@ type runPub struct {
 	// quietAfter of them it is not looked at again (an ended run does
 	// not change; the wait is for a late result.json).
 	quietScans int
-	count   int // points stored, for a run whose points are not read
+	count      int // points stored, for a run whose points are not read
 	// listedUpdated is meta.json's time when the run was found
 	// interrupted at the start.
 	listedUpdated time.Time
@@ -199,9 +202,17 @@ func (p *Publisher) Connected() bool {
 func (p *Publisher) Flush(ctx context.Context) error {
 	t := time.NewTicker(20 * time.Millisecond)
 	defer t.Stop()
+	p.mu.Lock()
+	from := p.rounds
+	p.mu.Unlock()
 	for {
 		p.Notify()
-		if p.flushed() {
+		p.mu.Lock()
+		// A round that began after this call has seen the store as it
+		// is now.
+		looked := p.rounds >= from+2
+		p.mu.Unlock()
+		if looked && p.flushed() {
 			return nil
 		}
 		select {
@@ -300,6 +311,9 @@ func (p *Publisher) loop() {
 	for {
 		p.scan()
 		p.send()
+		p.mu.Lock()
+		p.rounds++
+		p.mu.Unlock()
 		select {
 		case <-p.stop:
 			return
@@ -431,6 +445,15 @@ func (p *Publisher) setRetainedLocked(topic string, payload []byte) {
 func (p *Publisher) scanStart() {
 	if p.cfg.Run != "" {
 		p.track(p.cfg.Run, true)
+		return
+	}
+	if p.cfg.Recent < 0 {
+		ents, _ := os.ReadDir(p.cfg.StoreDir)
+		p.mu.Lock()
+		defer p.mu.Unlock()
+		for _, e := range ents {
+			p.runs[e.Name()] = &runPub{id: e.Name(), skip: true}
+		}
 		return
 	}
 	st, err := store.Open(p.cfg.StoreDir)
