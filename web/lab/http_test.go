@@ -5,8 +5,8 @@ import (
 	"net/http"
 	"strconv"
 	"strings"
-	"time"
 	"testing"
+	"time"
 
 	"github.com/gorilla/websocket"
 	"github.com/rs/zerolog"
