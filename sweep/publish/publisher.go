@@ -97,7 +97,11 @@ type runPub struct {
 	// quietAfter of them it is not looked at again (an ended run does
 	// not change; the wait is for a late result.json).
 	quietScans int
-	count      int // points stored, for a run whose points are not read
+	// The state last set: its state and message, point count, time.
+	stateKey string
+	stateN   int
+	stateAt  time.Time
+	count    int // points stored, for a run whose points are not read
 	// listedUpdated is meta.json's time when the run was found
 	// interrupted at the start.
 	listedUpdated time.Time
@@ -604,9 +608,14 @@ func (p *Publisher) scanRun(r *runPub) {
 		n = r.count
 	}
 	m := r.meta
-	b, _ := json.Marshal(State{Schema: Schema, Bench: p.cfg.BenchID, Run: r.id, Name: m.Name, State: r.state(), Message: m.Message,
-		Created: m.Created, Updated: m.Updated, Points: n, PlanPoints: m.Plan.Points, Plan: m.Plan})
-	p.setRetainedLocked(RunTopic(p.cfg.BenchID, r.id, TopicState), b)
+	// A new state or message is sent at once; a new point count alone
+	// at most every StateEvery (the points carry the progress live).
+	if key := string(r.state()) + "\x00" + m.Message; key != r.stateKey || (n != r.stateN && time.Since(r.stateAt) >= StateEvery) || m.State.Final() {
+		b, _ := json.Marshal(State{Schema: Schema, Bench: p.cfg.BenchID, Run: r.id, Name: m.Name, State: r.state(), Message: m.Message,
+			Created: m.Created, Updated: m.Updated, Points: n, PlanPoints: m.Plan.Points, Plan: m.Plan})
+		p.setRetainedLocked(RunTopic(p.cfg.BenchID, r.id, TopicState), b)
+		r.stateKey, r.stateN, r.stateAt = key, n, time.Now()
+	}
 	p.setBlocksLocked(r)
 	if r.meta.State.Final() {
 		r.quietScans++
@@ -624,8 +633,12 @@ func (p *Publisher) scanRun(r *runPub) {
 const quietAfter = 20
 
 // BlockEvery is how often the last, partial block of a run is set
-// again while points arrive.
-const BlockEvery = 500 * time.Millisecond
+// again while points arrive; StateEvery how often a run's state is set
+// again for a new point count alone.
+const (
+	BlockEvery = 2 * time.Second
+	StateEvery = time.Second
+)
 
 // setBlocksLocked sets the retained blocks of r's points: each full
 // block once, the partial last one at most every BlockEvery and when
@@ -636,7 +649,7 @@ func (p *Publisher) setBlocksLocked(r *runPub) {
 	}
 	block := func(k, n int) {
 		pts := r.pts[k*BlockPoints : k*BlockPoints+n]
-		b, err := json.Marshal(Block{Schema: Schema, Bench: p.cfg.BenchID, Run: r.id, FirstSeq: pts[0].Seq, Points: pts})
+		b, err := json.Marshal(Block{Schema: Schema, Bench: p.cfg.BenchID, Run: r.id, FirstSeq: pts[0].Seq, LastSeq: pts[len(pts)-1].Seq, Count: len(pts), Points: pts})
 		if err == nil {
 			p.setRetainedLocked(BlockTopic(p.cfg.BenchID, r.id, k), b)
 		}

@@ -138,11 +138,15 @@ type Point struct {
 // subscription when the broker restarted, gets every point of the runs
 // still published from the blocks.
 type Block struct {
-	Schema   int           `json:"schema"`
-	Bench    string        `json:"bench"`
-	Run      string        `json:"run"`
-	FirstSeq int           `json:"first_seq"`
-	Points   []point.Point `json:"points"`
+	Schema   int    `json:"schema"`
+	Bench    string `json:"bench"`
+	Run      string `json:"run"`
+	FirstSeq int    `json:"first_seq"`
+	// LastSeq and Count let a receiver that has every point of the
+	// block skip decoding them.
+	LastSeq int           `json:"last_seq"`
+	Count   int           `json:"count"`
+	Points  []point.Point `json:"points"`
 }
 
 // Result is the retained payload of runs/{run}/result: the run's

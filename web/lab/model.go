@@ -79,6 +79,13 @@ func (b *Bench) run(id string) *Run {
 	return r
 }
 
+// hasAll reports whether r holds every seq from first to last.
+func (r *Run) hasAll(first, last int) bool {
+	i := sort.Search(len(r.Points), func(i int) bool { return r.Points[i].Seq >= first })
+	j := sort.Search(len(r.Points), func(i int) bool { return r.Points[i].Seq > last })
+	return j-i == last-first+1
+}
+
 // addPoint inserts p in r by seq and reports whether it was new.
 func (r *Run) addPoint(p PointMsg) bool {
 	n := len(r.Points)
@@ -159,6 +166,18 @@ func (v *view) applyOne(topic string, payload []byte, now time.Time) []map[strin
 		b.run(run).Result = r.Result
 		out["run"], out["result"] = run, r.Result
 	case publish.TopicBlocks:
+		var head struct {
+			Run      string `json:"run"`
+			FirstSeq int    `json:"first_seq"`
+			LastSeq  int    `json:"last_seq"`
+			Count    int    `json:"count"`
+		}
+		if json.Unmarshal(payload, &head) != nil || head.Run != run {
+			return nil
+		}
+		if head.Count > 0 && head.LastSeq-head.FirstSeq+1 == head.Count && b.run(run).hasAll(head.FirstSeq, head.LastSeq) {
+			return nil // nothing new: the usual case
+		}
 		var blk publish.Block
 		if json.Unmarshal(payload, &blk) != nil || blk.Run != run || len(blk.Points) > publish.BlockPoints {
 			return nil
