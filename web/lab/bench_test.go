@@ -7,6 +7,7 @@ import (
 	"os"
 	"os/exec"
 	"sort"
+	"strconv"
 	"strings"
 	"sync"
 	"testing"
@@ -136,5 +137,31 @@ func BenchmarkLab50(b *testing.B) {
 	b.ReportMetric(float64(rss)/1024, "lab-rss-mb")
 	b.ReportMetric(float64(peak)/1024, "lab-peak-rss-mb")
 	b.ReportMetric(float64(fromBlocks), "from-blocks")
+	if cpu, err := cpuSeconds(cmd.Process.Pid); err == nil {
+		b.ReportMetric(cpu, "lab-cpu-s")
+	}
+	if cpu, err := cpuSeconds(br.Pid()); err == nil {
+		b.ReportMetric(cpu, "broker-cpu-s")
+	}
 	b.ReportMetric(0, "ns/op")
+}
+
+// cpuSeconds reads a process's user and system CPU time from
+// /proc/PID/stat (fields 14 and 15, in clock ticks of 1/100 s on Linux).
+func cpuSeconds(pid int) (float64, error) {
+	data, err := os.ReadFile(fmt.Sprintf("/proc/%d/stat", pid))
+	if err != nil {
+		return 0, err
+	}
+	s := string(data)
+	f := strings.Fields(s[strings.LastIndexByte(s, ')')+2:])
+	if len(f) < 13 {
+		return 0, fmt.Errorf("/proc/%d/stat: %d fields", pid, len(f))
+	}
+	u, err1 := strconv.ParseFloat(f[11], 64)
+	st, err2 := strconv.ParseFloat(f[12], 64)
+	if err1 != nil || err2 != nil {
+		return 0, fmt.Errorf("/proc/%d/stat: %q %q", pid, f[11], f[12])
+	}
+	return (u + st) / 100, nil
 }

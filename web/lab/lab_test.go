@@ -7,6 +7,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"runtime/pprof"
 	"syscall"
 	"testing"
 	"time"
@@ -282,6 +283,15 @@ func TestHelperLab(t *testing.T) {
 	l, err := New(Config{Broker: publish.Broker{URL: url}, Addr: "127.0.0.1:0", Log: zerolog.Nop()})
 	if err != nil {
 		t.Fatal(err)
+	}
+	if prof := os.Getenv("ROLLOFF_LAB_HELPER_CPUPROFILE"); prof != "" {
+		// Profile the lab for its first 4 s.
+		f, err := os.Create(prof)
+		if err != nil {
+			t.Fatal(err)
+		}
+		pprof.StartCPUProfile(f)
+		time.AfterFunc(4*time.Second, func() { pprof.StopCPUProfile(); f.Close() })
 	}
 	go func() {
 		for !l.BrokerConnected() {

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"rolloff/sweep/publish"
+	"rolloff/sweep/store"
 )
 
 // Limits on what the lab keeps in memory.
@@ -104,97 +105,127 @@ func (r *Run) addPoint(p PointMsg) bool {
 }
 
 // apply takes one broker message into the view and returns the live
-// messages for the page (none when nothing changed).
+// messages for the page (none when nothing changed or the message is
+// not one of ours). Each payload is decoded once; a point's live
+// message carries the payload as received.
 func (v *view) apply(topic string, payload []byte, now time.Time) [][]byte {
-	var out [][]byte
-	for _, m := range v.applyOne(topic, payload, now) {
-		if data, err := json.Marshal(m); err == nil {
-			out = append(out, data)
-		}
+	bench, run, kind, ok := publish.ParseTopic(topic)
+	if !ok || publish.CheckBenchID(bench) != nil || len(payload) == 0 {
+		return nil // not ours, or a retained message cleared
 	}
-	return out
+	// live is {"type":kind,"bench":…,"run":…,field:raw}; bench and run
+	// are checked ids, which JSON needs no escaping for.
+	live := func(field string, raw []byte) [][]byte {
+		m := make([]byte, 0, len(raw)+len(bench)+len(run)+64)
+		m = append(m, `{"type":"`...)
+		m = append(m, kind...)
+		m = append(m, `","bench":"`...)
+		m = append(m, bench...)
+		if run != "" {
+			m = append(m, `","run":"`...)
+			m = append(m, run...)
+		}
+		m = append(m, `","`...)
+		m = append(m, field...)
+		m = append(m, `":`...)
+		m = append(m, raw...)
+		m = append(m, '}')
+		return [][]byte{m}
+	}
+	switch kind {
+	case publish.TopicStatus:
+		var s publish.Status
+		if json.Unmarshal(payload, &s) != nil || s.Schema != publish.Schema || s.Bench != bench {
+			return nil
+		}
+		v.mu.Lock()
+		defer v.mu.Unlock()
+		b := v.bench(bench)
+		b.Seen, b.Status = now, &s
+		return live("status", payload)
+	case publish.TopicState:
+		var s publish.State
+		if json.Unmarshal(payload, &s) != nil || s.Schema != publish.Schema || s.Run != run || store.ValidID(run) != nil {
+			return nil
+		}
+		v.mu.Lock()
+		defer v.mu.Unlock()
+		b := v.bench(bench)
+		b.Seen = now
+		b.run(run).State = &s
+		return live("state", payload)
+	case publish.TopicPoints:
+		var p PointMsg
+		if json.Unmarshal(payload, &p) != nil || p.Schema != publish.Schema || p.Run != run || store.ValidID(run) != nil {
+			return nil
+		}
+		v.mu.Lock()
+		defer v.mu.Unlock()
+		b := v.bench(bench)
+		b.Seen = now
+		if !b.run(run).addPoint(p) {
+			return nil
+		}
+		return live("point", payload)
+	case publish.TopicResult:
+		var r publish.Result
+		if json.Unmarshal(payload, &r) != nil || r.Schema != publish.Schema || r.Run != run || store.ValidID(run) != nil || !json.Valid(r.Result) {
+			return nil
+		}
+		v.mu.Lock()
+		defer v.mu.Unlock()
+		b := v.bench(bench)
+		b.Seen = now
+		b.run(run).Result = r.Result
+		return live("result", r.Result)
+	case publish.TopicBlocks:
+		return v.applyBlock(bench, run, payload, now)
+	}
+	return nil
 }
 
-func (v *view) applyOne(topic string, payload []byte, now time.Time) []map[string]any {
-	bench, run, kind, ok := publish.ParseTopic(topic)
-	if !ok || publish.CheckBenchID(bench) != nil {
+// applyBlock takes the points of a block that the view lacks.
+func (v *view) applyBlock(bench, run string, payload []byte, now time.Time) [][]byte {
+	if store.ValidID(run) != nil {
 		return nil
 	}
 	var head struct {
-		Schema int `json:"schema"`
+		Schema   int    `json:"schema"`
+		Run      string `json:"run"`
+		FirstSeq int    `json:"first_seq"`
+		LastSeq  int    `json:"last_seq"`
+		Count    int    `json:"count"`
 	}
-	if len(payload) == 0 {
-		return nil // a retained message cleared
+	if json.Unmarshal(payload, &head) != nil || head.Schema != publish.Schema || head.Run != run {
+		return nil
 	}
-	if json.Unmarshal(payload, &head) != nil || head.Schema != publish.Schema {
+	v.mu.Lock()
+	all := head.Count > 0 && head.LastSeq-head.FirstSeq+1 == head.Count && v.bench(bench).run(run).hasAll(head.FirstSeq, head.LastSeq)
+	v.mu.Unlock()
+	if all {
+		return nil // nothing new: the usual case
+	}
+	var blk publish.Block
+	if json.Unmarshal(payload, &blk) != nil || len(blk.Points) > publish.BlockPoints {
 		return nil
 	}
 	v.mu.Lock()
 	defer v.mu.Unlock()
 	b := v.bench(bench)
 	b.Seen = now
-	out := map[string]any{"type": kind, "bench": bench}
-	switch kind {
-	case publish.TopicStatus:
-		var s publish.Status
-		if json.Unmarshal(payload, &s) != nil {
-			return nil
+	r := b.run(run)
+	var out [][]byte
+	for _, pt := range blk.Points {
+		p := PointMsg{Schema: blk.Schema, Bench: bench, Run: run, Seq: pt.Seq, Point: pt}
+		if !r.addPoint(p) {
+			r.Repeats-- // a block repeats points by design
+			continue
 		}
-		b.Status = &s
-		out["status"] = s
-	case publish.TopicState:
-		var s publish.State
-		if json.Unmarshal(payload, &s) != nil || s.Run != run {
-			return nil
+		if data, err := json.Marshal(map[string]any{"type": publish.TopicPoints, "bench": bench, "run": run, "point": p}); err == nil {
+			out = append(out, data)
 		}
-		b.run(run).State = &s
-		out["run"], out["state"] = run, s
-	case publish.TopicPoints:
-		var p PointMsg
-		if json.Unmarshal(payload, &p) != nil || p.Run != run {
-			return nil
-		}
-		if !b.run(run).addPoint(p) {
-			return nil
-		}
-		out["run"], out["point"] = run, p
-	case publish.TopicResult:
-		var r publish.Result
-		if json.Unmarshal(payload, &r) != nil || r.Run != run || !json.Valid(r.Result) {
-			return nil
-		}
-		b.run(run).Result = r.Result
-		out["run"], out["result"] = run, r.Result
-	case publish.TopicBlocks:
-		var head struct {
-			Run      string `json:"run"`
-			FirstSeq int    `json:"first_seq"`
-			LastSeq  int    `json:"last_seq"`
-			Count    int    `json:"count"`
-		}
-		if json.Unmarshal(payload, &head) != nil || head.Run != run {
-			return nil
-		}
-		if head.Count > 0 && head.LastSeq-head.FirstSeq+1 == head.Count && b.run(run).hasAll(head.FirstSeq, head.LastSeq) {
-			return nil // nothing new: the usual case
-		}
-		var blk publish.Block
-		if json.Unmarshal(payload, &blk) != nil || blk.Run != run || len(blk.Points) > publish.BlockPoints {
-			return nil
-		}
-		var outs []map[string]any
-		r := b.run(run)
-		for _, pt := range blk.Points {
-			p := PointMsg{Schema: blk.Schema, Bench: bench, Run: run, Seq: pt.Seq, Point: pt}
-			if r.addPoint(p) {
-				outs = append(outs, map[string]any{"type": publish.TopicPoints, "bench": bench, "run": run, "point": p})
-			} else {
-				r.Repeats-- // a block repeats points by design
-			}
-		}
-		return outs
 	}
-	return []map[string]any{out}
+	return out
 }
 
 // Snapshot is the lab's whole view.
