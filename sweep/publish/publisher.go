@@ -37,6 +37,11 @@ type Config struct {
 	// points only when they have not ended). Negative: none of them,
 	// only runs that appear later.
 	Recent int
+	// KeepBlocks is how many of the newest ended runs keep their
+	// points retained in the broker as blocks (default 5); older ones
+	// are cleared, so that the broker's memory does not grow with the
+	// store. Their state and result stay.
+	KeepBlocks int
 	// Poll is how often the store is looked at (default 100 ms); Notify
 	// makes the publisher look at once.
 	Poll time.Duration
@@ -138,6 +143,9 @@ func Start(cfg Config) (*Publisher, error) {
 	}
 	if cfg.Recent == 0 {
 		cfg.Recent = 5
+	}
+	if cfg.KeepBlocks <= 0 {
+		cfg.KeepBlocks = 5
 	}
 	if cfg.Poll <= 0 {
 		cfg.Poll = 100 * time.Millisecond
@@ -425,13 +433,19 @@ func (p *Publisher) handOver(it ackItem) {
 	p.ackq <- it
 }
 
-// sortedRuns returns the runs oldest first. The caller holds mu.
+// sortedRuns returns the runs oldest first (by creation, then id).
+// The caller holds mu.
 func (p *Publisher) sortedRuns() []*runPub {
 	rs := make([]*runPub, 0, len(p.runs))
 	for _, r := range p.runs {
 		rs = append(rs, r)
 	}
-	sort.Slice(rs, func(i, j int) bool { return rs[i].id < rs[j].id })
+	sort.Slice(rs, func(i, j int) bool {
+		if !rs[i].meta.Created.Equal(rs[j].meta.Created) {
+			return rs[i].meta.Created.Before(rs[j].meta.Created)
+		}
+		return rs[i].id < rs[j].id
+	})
 	return rs
 }
 
@@ -531,12 +545,40 @@ func (p *Publisher) scan() {
 	}
 	p.mu.Lock()
 	defer p.mu.Unlock()
+	p.clearOldBlocksLocked(rs)
 	st := Status{Schema: Schema, Bench: p.cfg.BenchID, Online: true, Version: p.cfg.Version, KeepAliveS: p.keepAlive().Seconds()}
 	if cur != nil {
 		st.Run, st.RunState = cur.id, cur.state()
 	}
 	b, _ := json.Marshal(st)
 	p.setRetainedLocked(StatusTopic(p.cfg.BenchID), b)
+}
+
+// clearOldBlocksLocked clears the retained blocks of the ended runs
+// past the KeepBlocks newest, once the broker has all their points, and
+// forgets those points (rs is sorted oldest first). The caller holds
+// mu.
+func (p *Publisher) clearOldBlocksLocked(rs []*runPub) {
+	kept := 0
+	for i := len(rs) - 1; i >= 0; i-- {
+		r := rs[i]
+		if !r.points || !r.meta.State.Final() || r.acked < len(r.pts) {
+			continue
+		}
+		if kept < p.cfg.KeepBlocks {
+			kept++
+			continue
+		}
+		n := r.blocks
+		if r.partLen > 0 {
+			n++
+		}
+		for k := range n {
+			p.setRetainedLocked(BlockTopic(p.cfg.BenchID, r.id, k), []byte{})
+		}
+		r.count, r.points = len(r.pts), false
+		r.pts, r.ackedAt, r.acked, r.next, r.blocks, r.partLen = nil, nil, 0, 0, 0, 0
+	}
 }
 
 // storeChanged reports whether the store directory may have new runs:

@@ -26,9 +26,14 @@ import (
 // the 99th percentile of the time from a point handed to the bench's
 // MQTT client to its arrival on the lab page's websocket (target: under
 // 50), lab-p50-ms, and the lab process's resident set (lab-rss-mb now,
-// lab-peak-rss-mb its peak).
+// lab-peak-rss-mb its peak). $ROLLOFF_LAB_BENCHES sets another number
+// of benches, to see how the figures scale.
 func BenchmarkLab50(b *testing.B) {
-	const benches, points, interval = 50, 80, 40 * time.Millisecond
+	const points, interval = 80, 40 * time.Millisecond
+	benches := 50
+	if n, err := strconv.Atoi(os.Getenv("ROLLOFF_LAB_BENCHES")); err == nil {
+		benches = n
+	}
 	br := brokertest.Start(b, brokertest.Opts{})
 	bk := publish.Broker{URL: br.URL()}
 

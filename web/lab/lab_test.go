@@ -331,3 +331,49 @@ func TestBrokerLate(t *testing.T) {
 	})
 	checkRun(t, l, st, "late-bench", run)
 }
+
+// TestOldBlocksCleared: a bench keeps the points of only its newest
+// ended runs retained in the broker (KeepBlocks); a lab that starts
+// later sees every run's state and result, and the points of those
+// runs alone.
+func TestOldBlocksCleared(t *testing.T) {
+	br := brokertest.Start(t, brokertest.Opts{})
+	b := publish.Broker{URL: br.URL()}
+	st, err := store.Open(filepath.Join(t.TempDir(), "runs"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := publish.Start(publish.Config{Broker: b, BenchID: "busy", StoreDir: st.Dir(), KeepBlocks: 1, Poll: 20 * time.Millisecond, Log: zerolog.Nop()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer p.Stop(context.Background())
+	var runs []string
+	for i := range 3 {
+		id, done := simSweep(t, st, fmt.Sprintf("run %d", i), 70, time.Millisecond)
+		<-done
+		runs = append(runs, id)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+	defer cancel()
+	if err := p.Flush(ctx); err != nil {
+		t.Fatal(err)
+	}
+	l := startLab(t, b)
+	newest := runs[len(runs)-1]
+	waitFor(t, 10*time.Second, "the newest run's points in the late lab", func() bool {
+		r := labRun(l.Snapshot(), "busy", newest)
+		return r != nil && len(r.Points) == 70
+	})
+	time.Sleep(300 * time.Millisecond) // anything else retained has arrived by now
+	for _, id := range runs[:len(runs)-1] {
+		r := labRun(l.Snapshot(), "busy", id)
+		if r == nil || r.State == nil || r.State.State != "done" || r.State.Points != 70 || len(r.Result) == 0 {
+			t.Errorf("old run %s: %+v, want its state (done, 70 points) and result", id, r)
+			continue
+		}
+		if len(r.Points) != 0 {
+			t.Errorf("old run %s: %d points still retained in the broker", id, len(r.Points))
+		}
+	}
+}
