@@ -17,6 +17,7 @@ import (
 	"github.com/rs/zerolog"
 
 	"rolloff/sweep/point"
+	"rolloff/sweep/publish"
 	"rolloff/sweep/publish/brokertest"
 	"rolloff/web/lab"
 )
@@ -160,3 +161,58 @@ func jsonEqual(a, b any) bool {
 	y, _ := json.Marshal(b)
 	return bytes.Equal(x, y)
 }
+
+// TestServePublishesStatus runs `rolloff serve --bench demo --broker …`:
+// the lab shows the daemon online, and offline ("stopped") once the
+// daemon has been stopped as SIGTERM stops it.
+func TestServePublishesStatus(t *testing.T) {
+	br := brokertest.Start(t, brokertest.Opts{})
+	l, err := lab.New(lab.Config{Broker: publishBroker(br.URL()), Addr: "127.0.0.1:0", Log: zerolog.Nop()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	lctx, lcancel := context.WithCancel(context.Background())
+	defer lcancel()
+	go l.Serve(lctx)
+	status := func() (online bool, reason string, found bool) {
+		for _, b := range l.Snapshot().Benches {
+			if b.ID == "daemon-1" && b.Status != nil {
+				return b.Status.Online, b.Status.Reason, true
+			}
+		}
+		return false, "", false
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	var out lockedBuffer
+	env := &cmdEnv{log: zerolog.Nop(), stdout: &out, stderr: io.Discard, stdin: strings.NewReader("")}
+	served := make(chan error, 1)
+	go func() {
+		served <- runServe(ctx, env, []string{"--bench", "demo", "--data", t.TempDir(), "--addr", "127.0.0.1:0", "--broker", br.URL(), "--bench-id", "daemon-1"})
+	}()
+	deadline := time.Now().Add(20 * time.Second)
+	for {
+		if on, _, ok := status(); ok && on && strings.Contains(out.String(), "rolloff serving") {
+			break
+		}
+		if time.Now().After(deadline) {
+			cancel()
+			t.Fatalf("the daemon is not shown online: %v", <-served)
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+	cancel() // what SIGTERM does (main's signal context)
+	if err := <-served; err != nil {
+		t.Fatalf("serve: %v", err)
+	}
+	for deadline = time.Now().Add(5 * time.Second); time.Now().Before(deadline); time.Sleep(20 * time.Millisecond) {
+		if on, reason, _ := status(); !on {
+			if reason != "stopped" {
+				t.Errorf("offline reason %q, want stopped (a clean stop, not the last will)", reason)
+			}
+			return
+		}
+	}
+	t.Fatal("the stopped daemon is still shown online")
+}
+
+func publishBroker(url string) publish.Broker { return publish.Broker{URL: url} }

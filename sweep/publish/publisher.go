@@ -521,7 +521,8 @@ func (p *Publisher) scan() {
 	p.mu.Lock()
 	rs := p.sortedRuns()
 	p.mu.Unlock()
-	// The current run: the newest one not ended, else the newest.
+	// The current run: the newest one being measured, else the newest
+	// queued, else the newest (rs is oldest first).
 	var cur *runPub
 	for _, r := range rs {
 		if r.skip {
@@ -530,16 +531,7 @@ func (p *Publisher) scan() {
 		if r.quietScans < quietAfter {
 			p.scanRun(r)
 		}
-		if r.meta.ID == "" {
-			continue
-		}
-		ended := r.state().Final() || r.state() == event.Interrupted
-		switch {
-		case cur == nil:
-			cur = r
-		case !ended && (cur.state().Final() || cur.state() == event.Interrupted):
-			cur = r
-		case ended == (cur.state().Final() || cur.state() == event.Interrupted) && r.meta.Created.After(cur.meta.Created):
+		if r.meta.ID != "" && (cur == nil || rank(r.state()) >= rank(cur.state())) {
 			cur = r
 		}
 	}
@@ -594,6 +586,18 @@ func (p *Publisher) storeChanged() bool {
 	}
 	p.dirMod, p.dirListed = fi.ModTime(), time.Now()
 	return true
+}
+
+// rank orders states for the choice of the current run: measuring
+// before queued before ended.
+func rank(s event.State) int {
+	switch {
+	case s.Final() || s == event.Interrupted:
+		return 0
+	case s == event.Queued:
+		return 1
+	}
+	return 2
 }
 
 // state is the run's state: meta.json's, or interrupted for a run found
