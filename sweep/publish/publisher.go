@@ -252,8 +252,15 @@ func (p *Publisher) flushed() bool {
 }
 
 // Stop flushes what it can before ctx ends, publishes the offline
-// status and disconnects.
+// status and disconnects. Later calls do nothing. Stop and Flush are
+// for one goroutine.
 func (p *Publisher) Stop(ctx context.Context) error {
+	p.mu.Lock()
+	stopped := p.stopping
+	p.mu.Unlock()
+	if stopped {
+		return nil // stopped before
+	}
 	ferr := p.Flush(ctx)
 	p.mu.Lock()
 	p.stopping = true

@@ -105,7 +105,9 @@
       const total = Math.max(st.plan_points || 0, r.points.length);
       card.appendChild(el("div", "run", (st.name || r.id) + " — " + (st.state || "?") + " — " + r.points.length + " / " + (st.plan_points || "?") + " points"));
       const bar = el("div", "bar"), fill = el("div");
-      fill.style.width = (total ? Math.min(100, 100 * r.points.length / total) : 0) + "%";
+      const ended = st.state === "done" || st.state === "aborted" || st.state === "failed";
+      fill.style.width = (st.state === "done" ? 100 : total ? Math.min(100, 100 * r.points.length / total) : 0) + "%";
+      if (ended && st.state !== "done") fill.style.background = "#8d2b2b";
       bar.appendChild(fill);
       card.appendChild(bar);
       const c = el("canvas");
