@@ -379,7 +379,7 @@ func (p *Publisher) acker() {
 			p.cfg.Log.Warn().Err(it.tok.Error()).Msg("broker did not acknowledge a message; sending again")
 			p.bumpLocked()
 		case it.run != nil:
-			if it.index == it.run.acked {
+			if it.index == it.run.acked && it.index < len(it.run.ackedAt) { // not a run whose points were since forgotten
 				it.run.acked++
 				it.run.ackedAt[it.index] = time.Now()
 			}
