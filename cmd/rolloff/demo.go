@@ -6,6 +6,7 @@ import (
 	"flag"
 	"fmt"
 	"math"
+	"time"
 
 	"rolloff/configs"
 	"rolloff/driver/bench"
@@ -48,6 +49,7 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	noServe := fs.Bool("no-serve", false, "do not serve the live page; exit when the sweep is done")
 	out := fs.String("out", "runs", "run store directory")
 	addr := fs.String("addr", "127.0.0.1:8750", "live page listen address host:port")
+	bf := addBrokerFlags(fs, true)
 	scale := fs.Float64("time-scale", 0, "simulated seconds per wall second, 1 to 1e6 (default: the bench file's 50 with --no-serve, 5 when serving so that points can be watched arriving)")
 	fs.Usage = func() {
 		fmt.Fprintf(env.stderr, "usage: rolloff demo [--no-serve] [--out DIR] [--addr HOST:PORT]\n\n"+
@@ -75,6 +77,11 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return fmt.Errorf("--out %s: %w", *out, err)
 	}
 	st.SetLogger(env.log)
+	stopPub, err := bf.startPublisher(env, st.Dir(), "demo", -1)
+	if err != nil {
+		return err
+	}
+	defer stopPub(5 * time.Second)
 	cfg, err := configs.LoadBench(configs.SimBench)
 	if err != nil {
 		return err

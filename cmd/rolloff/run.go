@@ -41,6 +41,7 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	fs.SetOutput(env.stderr)
 	benchPath := fs.String("bench", "", "bench file (required)")
 	out := fs.String("out", "runs", "run store directory; the run gets a directory inside it")
+	bf := addBrokerFlags(fs, true)
 	fs.Usage = func() {
 		fmt.Fprintf(env.stderr, "usage: rolloff run PLAN --bench BENCH [--out DIR]\n\n")
 		fs.PrintDefaults()
@@ -73,6 +74,11 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return fmt.Errorf("--out %s: %w", *out, err)
 	}
 	st.SetLogger(env.log)
+	stopPub, err := bf.startPublisher(env, st.Dir(), *benchPath, -1)
+	if err != nil {
+		return err
+	}
+	defer stopPub(5 * time.Second)
 	through, err := sched.LoadThrough(st, p)
 	if err != nil {
 		return fmt.Errorf("%s: %w", pos[0], err)

@@ -92,6 +92,7 @@ func runServe(ctx context.Context, env *cmdEnv, args []string) error {
 	data := fs.String("data", "", "run store directory (default: the daemon's data directory)")
 	token := fs.String("token", "", "access token required on every API request (default: none on loopback, generated otherwise)")
 	maxQueued := fs.Int("max-queued", queue.DefaultMaxQueued, "most runs waiting for the bench; a submission past it is answered 429 with Retry-After")
+	bf := addBrokerFlags(fs, true)
 	fs.Usage = func() {
 		fmt.Fprintf(env.stderr, "usage: rolloff serve --bench BENCH [--addr %s] [--data DIR] [--token T] [--max-queued N]\n\n", web.DefaultAddr)
 		fs.PrintDefaults()
@@ -126,6 +127,11 @@ func runServe(ctx context.Context, env *cmdEnv, args []string) error {
 		return fmt.Errorf("--data %s: %w", dir, err)
 	}
 	st.SetLogger(env.log)
+	stopPub, err := bf.startPublisher(env, st.Dir(), *benchPath, 0)
+	if err != nil {
+		return err
+	}
+	defer stopPub(2 * time.Second)
 
 	var b *bench.Bench
 	if *benchPath == "demo" {
