@@ -50,8 +50,8 @@ import (
 //
 // Our sweep runs at the same time scale as BenchmarkDemoSweep (5); the
 // bisection runs at a higher scale to stay quick, and the delay found is
-// then run again at the benchmark's scale (a tenth longer when it misses
-// there), where its time and error are the ones reported. The benchmark
+// then run again at the benchmark's scale (0.1 τ longer at a time when
+// it misses there), where its time and error are the ones reported. The benchmark
 // takes about 90 s with -benchtime 1x.
 func BenchmarkDemoSweepHonest(b *testing.B) {
 	const (
