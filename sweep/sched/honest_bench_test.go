@@ -71,7 +71,7 @@ func BenchmarkDemoSweepHonest(b *testing.B) {
 			target = math.Max(target, math.Abs(pt.GainDB-res.settledDB(pt.FreqHz, pt.RangeIndex, p.Level.Vrms)))
 		}
 		run := func(scale, k float64) fixedResult {
-			fr := fixedDelaySweep(b, honestConfig(b, scale), freqs, p.Level.Vrms, k, &res)
+			fr := fixedDelaySweep(b, honestConfig(b, scale), freqs, p.Level.Vrms, func(tauS float64) float64 { return k * tauS }, &res)
 			b.Logf("fixed delay %.4g τ at time scale %g: %.1f model-s, worst %.4f dB", k, scale, fr.durS, fr.worstConvDB)
 			return fr
 		}
@@ -352,14 +352,14 @@ type fixedResult struct {
 }
 
 // fixedDelaySweep is the sweep a careful user without a settle model
-// would run: at every frequency set the generator, wait k time constants
-// of the selected converter range, read once. Everything goes through
-// the bench's driver roles, on a fresh simulated bench of cfg; times are
-// on the simulator's clock.
+// would run: at every frequency set the generator, wait delayS(τ) for
+// the time constant τ of the selected converter range, read once.
+// Everything goes through the bench's driver roles, on a fresh simulated
+// bench of cfg; times are on the simulator's clock.
 //
-//   - Delay: k·τ of the range in use (a per-range delay is the stronger
-//     rival: one delay for every range would wait for the slowest one
-//     everywhere).
+//   - Delay: the benchmark uses k·τ of the range in use (a per-range
+//     delay is the stronger rival: one delay for every range would wait
+//     for the slowest one everywhere).
 //   - Reading: one reading over the shortest whole number of ripple
 //     periods 1/(2f) not under one power-line cycle (whole periods null
 //     the converter's 2f ripple and line hum; common practice).
@@ -375,7 +375,7 @@ type fixedResult struct {
 //
 // These choices favour the fixed-delay sweep, so that the ratio to it is
 // not flattered.
-func fixedDelaySweep(tb testing.TB, cfg *profile.Bench, freqs []float64, vrms, k float64, ref *ourSweep) fixedResult {
+func fixedDelaySweep(tb testing.TB, cfg *profile.Bench, freqs []float64, vrms float64, delayS func(tauS float64) float64, ref *ourSweep) fixedResult {
 	tb.Helper()
 	ctx := context.Background()
 	bn, err := bench.Open(ctx, cfg, zerolog.Nop())
@@ -435,7 +435,7 @@ func fixedDelaySweep(tb testing.TB, cfg *profile.Bench, freqs []float64, vrms, k
 		if err := dvm.ConfigureDC(ctx, driver.DCConfig{RangeV: bn.DCConfig.RangeV, Aperture: driver.Aperture{Seconds: ap}}); err != nil {
 			fail("voltmeter", err)
 		}
-		waitModel(ctx, sm, clearOfHolds(tStep+k*ranges[rng].TimeConstantS, ap, hold))
+		waitModel(ctx, sm, clearOfHolds(tStep+delayS(ranges[rng].TimeConstantS), ap, hold))
 		for tries := 0; ; tries++ {
 			v, err := dvm.ReadDC(ctx)
 			over := errors.Is(err, driver.ErrOverload)
