@@ -37,6 +37,6 @@ func Names() []string {
 
 // LoadBench reads and validates an embedded bench file and the embedded
 // profiles it names.
-func LoadBench(name string) (*profile.Bench, error) {
+func LoadBench(name string) (*profile.BenchFile, error) {
 	return profile.LoadBenchFS(files, name)
 }

@@ -20,18 +20,20 @@ import (
 	"rolloff/sweep/point"
 	"rolloff/sweep/queue"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/store"
 	"rolloff/web/guard"
 	"rolloff/web/hub"
 	"rolloff/web/page"
 )
 
-// Files lists the exports a run serves, with their content types.
-var Files = map[string]string{
-	"response.csv": "text/csv; charset=utf-8",
-	"result.json":  "application/json",
-	"response.png": "image/png",
-	"response.svg": "image/svg+xml",
-	"response.pdf": "application/pdf",
+// files maps the result files a run serves (store.ResultFiles) to their
+// content types.
+var files = map[string]string{
+	store.FileResponseCSV: "text/csv; charset=utf-8",
+	store.FileResult:      "application/json",
+	store.FileResponsePNG: "image/png",
+	store.FileResponseSVG: "image/svg+xml",
+	store.FileResponsePDF: "application/pdf",
 }
 
 // MaxOverlayRuns is the most runs one overlay may combine.
@@ -486,9 +488,9 @@ func (s *Server) points(w http.ResponseWriter, r *http.Request, id string) {
 }
 
 func (s *Server) file(w http.ResponseWriter, r *http.Request, id, name string) {
-	ct, ok := Files[name]
+	ct, ok := files[name]
 	if !ok {
-		guard.WriteError(w, http.StatusNotFound, "name", fmt.Sprintf("file %q: want one of response.csv, result.json, response.png, response.svg, response.pdf", clip(name)))
+		guard.WriteError(w, http.StatusNotFound, "name", fmt.Sprintf("file %q: want one of %s", clip(name), strings.Join(store.ResultFiles(), ", ")))
 		return
 	}
 	if _, err := s.queue.Get(id); err != nil {

@@ -194,7 +194,7 @@ func TestRunLifecycle(t *testing.T) {
 	want(t, "negative from_seq", res, data, 400, "from_seq")
 
 	// Files: every export, and nothing else.
-	for name, ct := range Files {
+	for name, ct := range files {
 		res, data = d.do("GET", "/api/runs/"+id+"/files/"+name, nil)
 		want(t, name, res, data, 200, "")
 		if res.Header.Get("Content-Type") != ct || len(data) == 0 {

@@ -38,7 +38,7 @@ type Estimate struct {
 	Points          int        `json:"points"`
 	RefineMaxPoints int        `json:"refine_max_points,omitempty"`
 	DurationS       float64    `json:"duration_s"` // physical seconds
-	TimeScale       float64    `json:"time_scale"` // wall seconds per physical second on this bench
+	TimeScale       float64    `json:"time_scale"` // physical seconds per wall second on this bench
 	StartHz         float64    `json:"start_hz"`
 	StopHz          float64    `json:"stop_hz"`
 	Plan            *plan.Plan `json:"plan"` // with its defaults filled in

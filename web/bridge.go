@@ -21,6 +21,7 @@ import (
 	"rolloff/sweep/point"
 	"rolloff/sweep/queue"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/store"
 )
@@ -137,7 +138,7 @@ func (g *bridge) Start(ctx context.Context, id string, p *plan.Plan, resume bool
 		g.release(id)
 		return nil, err
 	}
-	opts := sched.Opts{Resume: resume, SubscriberBuffer: 4096, Through: through}
+	opts := sched.Opts{Resume: resume, SubscriberBuffer: 4096, Finish: finish.Analyze(p, r.Dir(), through)}
 	if g.b.Sim != nil {
 		opts.RangeKnown, opts.CurrentRange = true, g.b.Sim.ConverterRange()
 	}
@@ -161,7 +162,7 @@ func (r schedRun) Snapshot() queue.Snapshot {
 	st := r.Status()
 	sn := queue.Snapshot{State: st.State, Prompt: st.Prompt}
 	if st.Total > 0 {
-		sn.Progress = &event.Progress{Done: st.Done, Total: st.Total, FreqHz: st.FreqHz, ETASec: st.ETASec, Elapsed: st.ElapsedSec}
+		sn.Progress = &event.Progress{Done: st.Done, Total: st.Total, FreqHz: st.FreqHz, ETA: st.ETA, Elapsed: st.Elapsed}
 	}
 	return sn
 }
@@ -217,7 +218,7 @@ func (g *bridge) SetState(ctx context.Context, id string, s event.State, msg str
 		}
 	}
 	err := r.SetState(s, msg)
-	if s.Final() || s == event.Interrupted {
+	if s.Ended() {
 		// Nothing will run it in this daemon: let the lock go, so that
 		// a later daemon (or the CLI) may resume it.
 		if s.Final() {
@@ -363,9 +364,9 @@ func (g *bridge) Overlay(ctx context.Context, w io.Writer, format string, ids []
 		if len(ss) != 2 {
 			return badRequest("diff", "a difference plot takes exactly two runs (the second minus the first), not %d", len(ss))
 		}
-		err = export.DiffPlot(w, format, ss[0], ss[1])
+		err = export.DiffPlot(w, format, export.PlotOptions{}, ss[0], ss[1])
 	} else {
-		err = export.Overlay(w, format, ss...)
+		err = export.Overlay(w, format, export.PlotOptions{}, ss...)
 	}
 	if err != nil {
 		return &apiError{status: 422, field: "runs", msg: fmt.Sprintf("cannot plot these runs: %v", err)}

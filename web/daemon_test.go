@@ -58,7 +58,7 @@ func runTestDaemon(mode, dir string) error {
 		if err != nil {
 			return err
 		}
-		cfg.Sim.TimeScale, cfg.TimeScale = scale, scale
+		cfg.TimeScale = scale
 		b, err := bench.Open(context.Background(), cfg, zerolog.Nop())
 		if err != nil {
 			return err

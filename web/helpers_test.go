@@ -56,7 +56,6 @@ func openDemoBench(t testing.TB, scale float64) *bench.Bench {
 	if scale <= 0 {
 		scale = 400
 	}
-	cfg.Sim.TimeScale = scale
 	cfg.TimeScale = scale
 	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
 	defer cancel()

@@ -12,6 +12,7 @@ import (
 	"rolloff/sweep/analysis"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/store"
 )
 
@@ -83,9 +84,9 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		if !(*scale >= 1 && *scale <= 1e6) {
 			return &exitError{code: 2, err: fmt.Errorf("--time-scale %g: want 1 to 1e6", *scale)}
 		}
-		cfg.TimeScale, cfg.Sim.TimeScale = *scale, *scale
+		cfg.TimeScale = *scale
 	case !*noServe:
-		cfg.TimeScale, cfg.Sim.TimeScale = demoServeTimeScale, demoServeTimeScale
+		cfg.TimeScale = demoServeTimeScale
 	}
 	b, err := bench.Open(ctx, cfg, env.log)
 	if err != nil {
@@ -108,7 +109,7 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer run.Close()
-	opts := sched.Opts{Operator: simOperator(env, b, nil)}
+	opts := sched.Opts{Operator: simOperator(env, b, nil), Finish: finish.Analyze(p, run.Dir(), nil)}
 	return sweepAndReport(ctx, env, b, p, run, opts, compare)
 }
 

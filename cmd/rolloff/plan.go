@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"rolloff/driver/profile"
+	"rolloff/driver/sim"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/sched/onbench"
 )
@@ -44,6 +45,12 @@ func runPlanCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return err
 	}
+	var simCfg *sim.Config
+	if cfg.Sim != nil {
+		if simCfg, err = sim.FromBenchFile(cfg); err != nil {
+			return err
+		}
+	}
 	p, err := plan.Load(pos[0])
 	if err != nil {
 		return err
@@ -70,7 +77,7 @@ func runPlanCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		fmt.Fprintf(w, "%d\t%s\t%s\t\n", i, plan.FormatHz(f.Hz, 6), f.Label)
 	}
 	w.Flush()
-	scale := timeScale(cfg)
+	scale := timeScale(cfg, simCfg)
 	fmt.Fprintf(env.stdout, "\n%d points at %g Vrms, strategy %s, tolerance %g, %d readings per point\n",
 		len(freqs), p.Level.Vrms, p.Ranging.Strategy, p.Settle.Tolerance, p.Settle.Readings)
 	fmt.Fprintf(env.stdout, "estimated duration (settle model, physical time):\n")
@@ -89,12 +96,12 @@ func runPlanCmd(ctx context.Context, env *cmdEnv, args []string) error {
 }
 
 // timeScale returns the simulated bench's time scale (1 on real benches).
-func timeScale(cfg *profile.Bench) float64 {
+func timeScale(cfg *profile.BenchFile, simCfg *sim.Config) float64 {
+	if simCfg != nil && simCfg.TimeScale > 0 {
+		return simCfg.TimeScale
+	}
 	if cfg.TimeScale > 0 {
 		return cfg.TimeScale
-	}
-	if cfg.Sim != nil && cfg.Sim.TimeScale > 0 {
-		return cfg.Sim.TimeScale
 	}
 	return 1
 }

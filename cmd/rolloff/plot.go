@@ -11,6 +11,7 @@ import (
 
 	"rolloff/sweep/analysis"
 	"rolloff/sweep/export"
+	"rolloff/sweep/store"
 )
 
 func init() {
@@ -79,14 +80,14 @@ func plotMain(stderr io.Writer, args []string) error {
 	var buf bytes.Buffer
 	switch {
 	case *diff:
-		err = export.DiffPlotWith(&buf, format, po, series[0], series[1])
+		err = export.DiffPlot(&buf, format, po, series[0], series[1])
 	case len(series) > 1:
-		err = export.OverlayWith(&buf, format, po, series...)
+		err = export.Overlay(&buf, format, po, series...)
 	default:
-		err = export.WritePlotWith(&buf, format, series[0].Points, series[0].Result, po)
+		err = export.WritePlot(&buf, format, series[0].Points, series[0].Result, po)
 	}
 	if err != nil {
 		return err
 	}
-	return export.WriteFileAtomic(*out, buf.Bytes())
+	return store.WriteFileAtomic(*out, buf.Bytes())
 }

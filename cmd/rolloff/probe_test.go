@@ -1,44 +1,25 @@
 package main
 
 import (
-	"bufio"
 	"bytes"
 	"io"
 	"net"
 	"strings"
-	"sync"
 	"testing"
 	"time"
 
 	"github.com/creack/pty"
+
+	"rolloff/internal/scpitest"
 )
 
 // probeInstrument answers *IDN? and an error queue holding one entry
-// (SCPI-1999 Vol 2 §21.8) on lines ending in term, and records what it
+// (SCPI-1999 Vol 2 §21.8) with replies ending in term, and records what it
 // received.
-func probeInstrument(rw io.ReadWriter, term string, mu *sync.Mutex, got *[]string) {
-	r := bufio.NewReader(rw)
-	queue := []string{`-113,"Undefined header"`}
-	for {
-		line, err := r.ReadString('\n')
-		if err != nil {
-			return
-		}
-		mu.Lock()
-		*got = append(*got, line)
-		mu.Unlock()
-		switch strings.TrimRight(line, "\r\n") {
-		case "*IDN?":
-			io.WriteString(rw, "rolloff,SIM-GEN,0001,1.0"+term)
-		case "SYST:ERR?":
-			if len(queue) > 0 {
-				io.WriteString(rw, queue[0]+term)
-				queue = queue[1:]
-			} else {
-				io.WriteString(rw, `0,"No error"`+term)
-			}
-		}
-	}
+func probeInstrument(term string) *scpitest.Instrument {
+	return &scpitest.Instrument{Term: term,
+		Replies: map[string]string{"*IDN?": "rolloff,SIM-GEN,0001,1.0"},
+		Errors:  []string{`-113,"Undefined header"`}}
 }
 
 func runCLI(args ...string) (code int, stdout, stderr string) {
@@ -48,22 +29,8 @@ func runCLI(args ...string) (code int, stdout, stderr string) {
 }
 
 func TestProbeTCP(t *testing.T) {
-	ln, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer ln.Close()
-	var mu sync.Mutex
-	var got []string
-	go func() {
-		c, err := ln.Accept()
-		if err != nil {
-			return
-		}
-		defer c.Close()
-		probeInstrument(c, "\n", &mu, &got)
-	}()
-	addr := "tcp://" + ln.Addr().String()
+	inst := probeInstrument("\n")
+	addr := scpitest.Listen(t, inst)
 	code, out, errOut := runCLI("probe", addr, "--timeout", "2s")
 	if code != 0 {
 		t.Fatalf("exit %d, stderr %q", code, errOut)
@@ -78,9 +45,7 @@ func TestProbeTCP(t *testing.T) {
 			t.Errorf("output lacks %q:\n%s", want, out)
 		}
 	}
-	mu.Lock()
-	defer mu.Unlock()
-	if strings.Join(got, "") != "*IDN?\nSYST:ERR?\nSYST:ERR?\n" {
+	if got := inst.Received(); strings.Join(got, "") != "*IDN?\nSYST:ERR?\nSYST:ERR?\n" {
 		t.Errorf("instrument received %q", got)
 	}
 }
@@ -139,9 +104,8 @@ func TestProbeSerialCRLF(t *testing.T) {
 	}
 	defer m.Close()
 	defer s.Close()
-	var mu sync.Mutex
-	var got []string
-	go probeInstrument(m, "\r\n", &mu, &got)
+	inst := probeInstrument("\r\n")
+	go inst.Serve(m)
 	code, out, errOut := runCLI("probe", "serial://"+s.Name()+"?baud=115200", "--write-term", `\r\n`, "--read-term", `\r\n`, "--timeout", "2s")
 	if code != 0 {
 		t.Fatalf("exit %d, stderr %q", code, errOut)
@@ -149,9 +113,7 @@ func TestProbeSerialCRLF(t *testing.T) {
 	if !strings.Contains(out, "model:        SIM-GEN\n") || !strings.Contains(out, "transport:    serial\n") {
 		t.Errorf("output:\n%s", out)
 	}
-	mu.Lock()
-	defer mu.Unlock()
-	if len(got) == 0 || got[0] != "*IDN?\r\n" {
+	if got := inst.Received(); len(got) == 0 || got[0] != "*IDN?\r\n" {
 		t.Errorf("instrument received %q, want CR LF terminated commands", got)
 	}
 }

@@ -14,6 +14,7 @@ import (
 	"rolloff/driver/profile"
 	"rolloff/sweep/event"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/store"
 )
 
@@ -64,7 +65,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if err != nil {
 		return err
 	}
-	var cfg *profile.Bench
+	var cfg *profile.BenchFile
 	if *benchPath != "" {
 		cfg, err = bench.Load(*benchPath)
 	} else {
@@ -81,7 +82,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer b.Close()
-	opts := sched.Opts{Resume: true, Operator: terminalOperator(env)}
+	opts := sched.Opts{Resume: true, Operator: terminalOperator(env), Finish: finish.Analyze(p, run.Dir(), nil)}
 	if b.Sim != nil {
 		opts.Operator = simOperator(env, b, opts.Operator)
 	}
@@ -91,7 +92,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 // storedBench loads the run directory's bench.toml. Its profiles are
 // looked for beside it, then among the shipped profiles (the demo
 // bench's are embedded).
-func storedBench(dir string) (*profile.Bench, error) {
+func storedBench(dir string) (*profile.BenchFile, error) {
 	name := filepath.Join(dir, store.FileBench)
 	data, err := os.ReadFile(name)
 	if err != nil {

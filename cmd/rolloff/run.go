@@ -23,6 +23,7 @@ import (
 	"rolloff/sweep/event"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/store"
 )
@@ -86,7 +87,7 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer run.Close()
-	opts := sched.Opts{Operator: terminalOperator(env), Through: through}
+	opts := sched.Opts{Operator: terminalOperator(env), Finish: finish.Analyze(p, run.Dir(), through)}
 	if b.Sim != nil {
 		opts.Operator = simOperator(env, b, opts.Operator)
 	}
@@ -238,7 +239,7 @@ func (pr *progress) show(ev event.Event, st sched.Status) {
 		if st.Total > 0 {
 			pr.bar.ChangeMax(st.Total)
 		}
-		eta := time.Duration(st.ETASec * float64(time.Second)).Round(time.Second)
+		eta := st.ETA.Round(time.Second)
 		pr.bar.Describe(fmt.Sprintf("%-9s %12s  ETA %s", st.State, analysis.FormatHz(st.FreqHz, 4), eta))
 		_ = pr.bar.Set(st.Done)
 		if ev.Type == event.TypePrompt || (ev.Type == event.TypeLog && ev.Message != "") {
@@ -253,7 +254,7 @@ func (pr *progress) show(ev event.Event, st sched.Status) {
 		pt := ev.Point
 		e := l.Info().Int("seq", pt.Seq).Float64("freq_hz", pt.FreqHz).Float64("gain_db", pt.GainDB).
 			Str("range", pt.Range).Float64("settle_s", pt.SettleS).Int("done", st.Done).Int("total", st.Total).
-			Float64("eta_s", st.ETASec)
+			Float64("eta_s", st.ETA.Seconds())
 		if len(pt.Flags) > 0 {
 			e = e.Strs("flags", pt.Flags)
 		}

@@ -67,7 +67,7 @@ func reportQueued(ctx context.Context, env *cmdEnv, q *queue.Queue, st *store.St
 		if info, err = q.Get(id); err != nil {
 			return err
 		}
-		if info.State.Final() || info.State == event.Interrupted {
+		if info.State.Ended() {
 			break
 		}
 		select {

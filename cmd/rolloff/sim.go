@@ -48,7 +48,11 @@ func runSim(ctx context.Context, env *cmdEnv, args []string) error {
 	if cfg.Sim == nil {
 		return fmt.Errorf("%s has no [sim] table: nothing to simulate", cfg.File)
 	}
-	b, err := sim.New(*cfg.Sim)
+	sc, err := sim.FromBenchFile(cfg)
+	if err != nil {
+		return err
+	}
+	b, err := sim.New(*sc)
 	if err != nil {
 		return fmt.Errorf("%s: %w", cfg.File, err)
 	}
@@ -73,7 +77,7 @@ func runSim(ctx context.Context, env *cmdEnv, args []string) error {
 
 // loadSimBench loads a bench file from disk, or the embedded file of the
 // same base name under configs/ when the path does not exist on disk.
-func loadSimBench(path string) (*profile.Bench, error) {
+func loadSimBench(path string) (*profile.BenchFile, error) {
 	if _, err := os.Stat(path); err == nil {
 		return profile.LoadBench(path)
 	} else if !errors.Is(err, os.ErrNotExist) {

@@ -55,7 +55,7 @@ type Bench struct {
 	// Raw is the bench file's bytes as given, for the run store.
 	Raw []byte
 	// Config is the decoded bench file with its resolved profiles.
-	Config *profile.Bench
+	Config *profile.BenchFile
 
 	log       zerolog.Logger
 	gen       *instr.Generator
@@ -74,7 +74,7 @@ const (
 )
 
 // Load reads and validates a bench file and the profiles it names.
-func Load(path string) (*profile.Bench, error) { return profile.LoadBench(path) }
+func Load(path string) (*profile.BenchFile, error) { return profile.LoadBench(path) }
 
 // OpenDemo opens the demo simulated bench (the embedded
 // configs/sim-bench.toml) in-process.
@@ -89,7 +89,7 @@ func OpenDemo(ctx context.Context, log zerolog.Logger) (*Bench, error) {
 // Open connects to every instrument of cfg and configures the roles. ctx
 // bounds the opening. On any failure everything opened so far is halted
 // and closed, and the error names the role, address and transport.
-func Open(ctx context.Context, cfg *profile.Bench, log zerolog.Logger) (*Bench, error) {
+func Open(ctx context.Context, cfg *profile.BenchFile, log zerolog.Logger) (*Bench, error) {
 	if cfg == nil {
 		return nil, errors.New("bench: nil bench configuration")
 	}
@@ -111,9 +111,13 @@ func Open(ctx context.Context, cfg *profile.Bench, log zerolog.Logger) (*Bench, 
 	return b, nil
 }
 
-func (b *Bench) open(ctx context.Context, cfg *profile.Bench) error {
+func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 	if cfg.Sim != nil {
-		s, err := sim.New(*cfg.Sim)
+		sc, err := sim.FromBenchFile(cfg)
+		if err != nil {
+			return err
+		}
+		s, err := sim.New(*sc)
 		if err != nil {
 			return fmt.Errorf("bench %s: simulated bench: %w", cfg.File, err)
 		}
@@ -240,7 +244,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.Bench) error {
 
 // connect opens the transport and SCPI session of one role. where names
 // the role, address and transport for error messages.
-func (b *Bench) connect(ctx context.Context, cfg *profile.Bench, role, address string, f profile.Framing) (*scpi.Session, string, error) {
+func (b *Bench) connect(ctx context.Context, cfg *profile.BenchFile, role, address string, f profile.Framing) (*scpi.Session, string, error) {
 	addr := address
 	if addr == profile.AddressSim {
 		if b.Sim == nil {

@@ -26,7 +26,7 @@ func testCtx(t *testing.T) context.Context {
 }
 
 // benchFrom loads bench text against the embedded profiles.
-func benchFrom(t *testing.T, text string) *profile.Bench {
+func benchFrom(t *testing.T, text string) *profile.BenchFile {
 	t.Helper()
 	m := fstest.MapFS{}
 	for _, n := range configs.Names() {
@@ -337,7 +337,11 @@ func TestSimConfigFromProfiles(t *testing.T) {
 		t.Fatal(err)
 	}
 	spec := cfg.Converter.Spec
-	got := cfg.Sim.Converter.Ranges
+	sc, err := sim.FromBenchFile(cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := sc.Converter.Ranges
 	if len(got) != len(spec.Ranges) {
 		t.Fatalf("simulator has %d ranges, profile %d", len(got), len(spec.Ranges))
 	}
@@ -348,17 +352,17 @@ func TestSimConfigFromProfiles(t *testing.T) {
 	}
 	// The demo DUT of the bench file: its sections replace the
 	// simulator's defaults rather than adding to them.
-	if secs := cfg.Sim.DUT.Sections; len(secs) != 2 || secs[0].Kind != "highpass1" || secs[0].FreqHz != 8 || secs[1].Kind != "butterworth-lowpass" || secs[1].FreqHz != 95e3 || secs[1].Order != 2 {
+	if secs := sc.DUT.Sections; len(secs) != 2 || secs[0].Kind != "highpass1" || secs[0].FreqHz != 8 || secs[1].Kind != "butterworth-lowpass" || secs[1].FreqHz != 95e3 || secs[1].Order != 2 {
 		t.Errorf("DUT sections %+v", secs)
 	}
-	if d := cfg.Sim.DUT; d.GainDB != 20 || d.ClipV != 12 {
+	if d := sc.DUT; d.GainDB != 20 || d.ClipV != 12 {
 		t.Errorf("DUT %+v, want +20 dB clipping at 12 V", d)
 	}
-	if cfg.Sim.TimeScale != 50 || cfg.TimeScale != 50 {
-		t.Errorf("time scale: sim %g, bench %g", cfg.Sim.TimeScale, cfg.TimeScale)
+	if sc.TimeScale != 50 || cfg.TimeScale != 50 {
+		t.Errorf("time scale: sim %g, bench %g", sc.TimeScale, cfg.TimeScale)
 	}
-	if cfg.Sim.Converter.HoldIntervalS != spec.HoldIntervalS || cfg.Sim.Converter.HoldS != spec.HoldS {
-		t.Errorf("hold: sim %g/%g, profile %g/%g", cfg.Sim.Converter.HoldIntervalS, cfg.Sim.Converter.HoldS, spec.HoldIntervalS, spec.HoldS)
+	if sc.Converter.HoldIntervalS != spec.HoldIntervalS || sc.Converter.HoldS != spec.HoldS {
+		t.Errorf("hold: sim %g/%g, profile %g/%g", sc.Converter.HoldIntervalS, sc.Converter.HoldS, spec.HoldIntervalS, spec.HoldS)
 	}
 }
 

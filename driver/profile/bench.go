@@ -4,14 +4,12 @@ import (
 	"errors"
 	"fmt"
 	"io/fs"
-	"math"
 	"os"
 	"path"
 	"path/filepath"
 	"strings"
 
 	"rolloff/driver"
-	"rolloff/driver/sim"
 	"rolloff/driver/transport"
 )
 
@@ -28,9 +26,10 @@ const (
 // role; it needs a [sim] table in the bench file.
 const AddressSim = "sim"
 
-// Bench is a bench file: which instrument plays which role, at which
-// address, and the bench's own limits.
-type Bench struct {
+// BenchFile is a decoded and validated bench file: which instrument plays
+// which role, at which address, with its profile resolved, and the
+// bench's own limits.
+type BenchFile struct {
 	File string `toml:"-"` // bench file name as given
 	Raw  []byte `toml:"-"` // bench file bytes as read
 
@@ -38,7 +37,8 @@ type Bench struct {
 	// VoltmeterMode is "converter" (DC voltmeter + converter) or "ac-dmm".
 	VoltmeterMode string `toml:"voltmeter_mode"`
 	// TimeScale speeds the simulated bench up: simulated seconds per real
-	// second. Only allowed with [sim]; 1 when absent.
+	// second. Only allowed with [sim]; 1 when absent (the [sim] table may
+	// then give its own, see sim.FromBenchFile).
 	TimeScale float64     `toml:"time_scale"`
 	Limits    BenchLimits `toml:"limits"`
 
@@ -51,14 +51,14 @@ type Bench struct {
 	// output at the DUT input, so the gain uses measured Vin.
 	Vin *ACMeterRole `toml:"vin"`
 
-	// Sim is the simulated bench (DUT, instruments) for "sim" addresses.
-	// Sim is the simulated bench (DUT, instruments) for "sim" addresses,
-	// decoded over sim.DemoConfig: keys the [sim] table leaves out keep
-	// their demo values, and the converter ranges, DC output, hold, DC
-	// voltmeter and DMM ranges and line frequency come from the profiles
-	// the bench names unless [sim] lists them, so that the simulator and
-	// the driver agree.
-	Sim *sim.Config `toml:"sim"`
+	// Sim is the [sim] table as written, nil when there is none: the
+	// simulated bench (DUT, instruments) for "sim" addresses. This
+	// package only notes that it is there; the simulator decodes and
+	// checks it against the profiles (sim.FromBenchFile), with
+	// DecodeTable, Listed, Line and KeyError.
+	Sim map[string]any `toml:"sim"`
+
+	lines keyLines // where each key is written
 }
 
 // BenchLimits protect the DUT. MaxVrms is the largest amplitude the
@@ -124,7 +124,7 @@ type ConverterRole struct {
 }
 
 // DCConfig returns the voltmeter configuration the bench asks for.
-func (b *Bench) DCConfig() driver.DCConfig {
+func (b *BenchFile) DCConfig() driver.DCConfig {
 	v := b.Voltmeter
 	if v == nil {
 		return driver.DCConfig{}
@@ -160,7 +160,7 @@ type ReadFunc func(name string) ([]byte, error)
 
 // LoadBench reads and validates a bench file and the profiles it names
 // from disk; profile paths are relative to the bench file.
-func LoadBench(file string) (*Bench, error) {
+func LoadBench(file string) (*BenchFile, error) {
 	data, err := os.ReadFile(file)
 	if err != nil {
 		return nil, &FieldError{File: file, Msg: "cannot read bench file", Err: err}
@@ -175,7 +175,7 @@ func LoadBench(file string) (*Bench, error) {
 }
 
 // LoadBenchFS is LoadBench on a file system such as the embedded configs.
-func LoadBenchFS(fsys fs.FS, name string) (*Bench, error) {
+func LoadBenchFS(fsys fs.FS, name string) (*BenchFile, error) {
 	data, err := fs.ReadFile(fsys, name)
 	if err != nil {
 		return nil, &FieldError{File: name, Msg: "cannot read bench file", Err: err}
@@ -188,15 +188,17 @@ func LoadBenchFS(fsys fs.FS, name string) (*Bench, error) {
 
 // DecodeBench decodes and validates a bench file. read reads a profile by
 // the name resolve gives for the path written in the bench file.
-func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel string) string) (*Bench, error) {
-	demo := sim.DemoConfig()
-	b := &Bench{File: file, Raw: append([]byte(nil), data...), Sim: &demo}
+func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel string) string) (*BenchFile, error) {
+	b := &BenchFile{File: file, Raw: append([]byte(nil), data...)}
 	if err := decodeStrict(file, data, b); err != nil {
 		return nil, err
 	}
 	p := newProblems(file, data)
+	b.lines = p.lines
 	if !p.lines.has("sim") {
 		b.Sim = nil
+	} else if b.Sim == nil {
+		b.Sim = map[string]any{}
 	}
 	b.validate(p)
 	if err := p.err(); err != nil {
@@ -211,7 +213,7 @@ func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel strin
 		name := resolve(rel)
 		d, err := read(name)
 		if err != nil {
-			errs = append(errs, &FieldError{File: file, Line: p.lines.line(key), Key: key, Value: formatValue(rel), Msg: "cannot read profile", Err: err})
+			errs = append(errs, &FieldError{File: file, Line: p.lines.line(key), Field: key, Value: formatValue(rel), Msg: "cannot read profile", Err: err})
 			return
 		}
 		k, err := kindOf(name, d)
@@ -220,7 +222,7 @@ func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel strin
 			return
 		}
 		if k != kind {
-			errs = append(errs, &FieldError{File: file, Line: p.lines.line(key), Key: key, Value: formatValue(rel),
+			errs = append(errs, &FieldError{File: file, Line: p.lines.line(key), Field: key, Value: formatValue(rel),
 				Msg: fmt.Sprintf("profile %s has kind %q", name, k), Allowed: fmt.Sprintf("a profile of kind %q", kind)})
 			return
 		}
@@ -270,20 +272,19 @@ func DecodeBench(file string, data []byte, read ReadFunc, resolve func(rel strin
 	}
 	p = newProblems(file, data)
 	b.crossCheck(p)
-	b.syncSim(p)
 	if err := p.err(); err != nil {
 		return nil, err
 	}
 	return b, nil
 }
 
-// Bench bounds.
+// BenchFile bounds.
 const (
 	maxTimeScale = 1e6
 	maxBenchVrms = 100.0
 )
 
-func (b *Bench) validate(p *problems) {
+func (b *BenchFile) validate(p *problems) {
 	switch b.VoltmeterMode {
 	case ModeConverter, ModeACDMM:
 	default:
@@ -375,7 +376,7 @@ func (b *Bench) validate(p *problems) {
 	}
 }
 
-func (b *Bench) checkAddress(p *problems, key, addr string) {
+func (b *BenchFile) checkAddress(p *problems, key, addr string) {
 	if addr == "" {
 		p.add(key, addr, "tcp://host[:port], serial:///dev/X?baud=.., usbtmc:///dev/usbtmcN or \"sim\"", "missing address")
 		return
@@ -411,7 +412,7 @@ func checkMeter(p *problems, sect string, rng float64, rangeKey string, nplc, ap
 }
 
 // crossCheck checks the bench against its resolved profiles.
-func (b *Bench) crossCheck(p *problems) {
+func (b *BenchFile) crossCheck(p *problems) {
 	if g := b.Generator; g != nil && g.Generator != nil {
 		gp := g.Generator
 		if b.Limits.MinFreqHz < gp.Limits.MinFreqHz || b.Limits.MaxFreqHz > gp.Limits.MaxFreqHz {
@@ -478,112 +479,6 @@ func checkMeterProfile(p *problems, sect string, rng float64, rangeKey string, n
 		if n > 0 && !contains(nplcs, n) {
 			p.add(sect+".nplc", n, "one of "+formatValue(nplcs), "NPLC not available")
 		}
-	}
-}
-
-// syncSim fills the simulated bench from the profiles where [sim] is
-// silent, refuses a [sim] that contradicts them, and validates it.
-func (b *Bench) syncSim(p *problems) {
-	c := b.Sim
-	if c == nil {
-		return
-	}
-	listed := p.lines.has
-	if b.TimeScale != 1 || listed("time_scale") {
-		if listed("sim.time_scale") && c.TimeScale != b.TimeScale {
-			p.add("sim.time_scale", c.TimeScale, fmt.Sprintf("the top-level time_scale (%g), or leave one of them out", b.TimeScale), "two time scales")
-		}
-		c.TimeScale = b.TimeScale
-	}
-	b.TimeScale = c.TimeScale
-	if conv := b.Converter; conv != nil && conv.Spec != nil {
-		cs := conv.Spec
-		if listed("sim.converter.ranges") {
-			// The simulator may give its converter other time constants
-			// (to test settling), but not other ranges than the driver
-			// scales by.
-			same := len(c.Converter.Ranges) == len(cs.Ranges)
-			for i := 0; same && i < len(cs.Ranges); i++ {
-				r := c.Converter.Ranges[i]
-				same = r.Name == cs.Ranges[i].Name && math.Abs(r.FullScaleVrms-cs.Ranges[i].FullScaleVrms) <= 1e-9*cs.Ranges[i].FullScaleVrms
-			}
-			if !same {
-				p.add("sim.converter.ranges", nil, fmt.Sprintf("the names and full scales of the %d ranges of %s, or no ranges here", len(cs.Ranges), cs.File), "the simulator's converter ranges differ from the converter profile")
-			}
-		} else {
-			c.Converter.Ranges = c.Converter.Ranges[:0:0]
-			for _, r := range cs.Ranges {
-				c.Converter.Ranges = append(c.Converter.Ranges, sim.Range{Name: r.Name, FullScaleVrms: r.FullScaleVrms, TimeConstantS: r.TimeConstantS})
-			}
-			if !listed("sim.converter.initial_range") && c.Converter.InitialRange >= len(c.Converter.Ranges) {
-				c.Converter.InitialRange = len(c.Converter.Ranges) - 1
-			}
-		}
-		if !listed("sim.converter.dc_full_scale_v") {
-			c.Converter.DCFullScaleV = cs.DCFullScaleV
-		}
-		if !listed("sim.converter.hold_interval_s") && !listed("sim.converter.hold_s") {
-			c.Converter.HoldIntervalS, c.Converter.HoldS = cs.HoldIntervalS, cs.HoldS
-		}
-	}
-	var lineHz float64
-	var lineFrom string
-	if v := b.Voltmeter; v != nil && v.DMM != nil {
-		if !listed("sim.voltmeter.ranges_v") {
-			c.Voltmeter.RangesV = append([]float64(nil), v.DMM.DC.RangesV...)
-		}
-		if !listed("sim.voltmeter.max_samples") {
-			c.Voltmeter.MaxSamples = v.DMM.MaxSamples
-		}
-		if !listed("sim.voltmeter.over_range_fraction") {
-			c.Voltmeter.OverRangeFraction = v.DMM.RangeHeadroom - 1
-		}
-		lineHz, lineFrom = v.DMM.LineHz, v.DMM.File
-	}
-	if d := b.DMM; d != nil && d.DMM != nil && d.DMM.AC != nil {
-		if !listed("sim.dmm.ranges_vrms") {
-			c.DMM.RangesVrms = append([]float64(nil), d.DMM.AC.RangesVrms...)
-		}
-		if !listed("sim.dmm.max_samples") {
-			c.DMM.MaxSamples = d.DMM.MaxSamples
-		}
-		if !listed("sim.dmm.over_range_fraction") {
-			c.DMM.OverRangeFraction = d.DMM.RangeHeadroom - 1
-		}
-		lineHz, lineFrom = d.DMM.LineHz, d.DMM.File
-	}
-	if lineHz > 0 {
-		if listed("sim.line_hz") && c.LineHz != lineHz {
-			p.add("sim.line_hz", c.LineHz, fmt.Sprintf("%g, the line_hz of %s", lineHz, lineFrom), "the simulator and the voltmeter profile disagree")
-		} else {
-			c.LineHz = lineHz
-		}
-	}
-	if err := c.Validate(); err != nil {
-		var ces []*sim.ConfigError
-		collectConfigErrors(err, &ces)
-		if len(ces) == 0 {
-			p.addErr("sim", nil, "", "bad [sim] table", err)
-		}
-		for _, ce := range ces {
-			p.addErr("sim."+ce.Key, ce.Value, ce.Allowed, "refused by the simulator", nil)
-		}
-	}
-}
-
-func collectConfigErrors(err error, out *[]*sim.ConfigError) {
-	if ce, ok := err.(*sim.ConfigError); ok {
-		*out = append(*out, ce)
-		return
-	}
-	if j, ok := err.(interface{ Unwrap() []error }); ok {
-		for _, e := range j.Unwrap() {
-			collectConfigErrors(e, out)
-		}
-		return
-	}
-	if e := errors.Unwrap(err); e != nil {
-		collectConfigErrors(e, out)
 	}
 }
 

@@ -9,65 +9,14 @@ import (
 
 	"github.com/pelletier/go-toml/v2"
 
-	"rolloff/driver/scpi"
+	"rolloff/internal/fielderr"
 )
 
-// FieldError is a problem with one key of a profile or bench file.
-type FieldError struct {
-	File    string // file name as given to the decoder
-	Line    int    // 1-based line of the key, 0 when unknown
-	Key     string // dotted TOML key, e.g. "commands.set_frequency" or "ranges[2].name"
-	Value   string // the bad value as written (may be empty for a missing key)
-	Allowed string // what is allowed
-	Msg     string // what is wrong, when Allowed alone does not say it
-	Err     error  // underlying cause, if any
-}
-
-// Error formats the problem as "file:line: key = value: msg (allowed: ...)".
-func (e *FieldError) Error() string {
-	var b strings.Builder
-	b.WriteString(e.File)
-	if e.Line > 0 {
-		fmt.Fprintf(&b, ":%d", e.Line)
-	}
-	b.WriteString(": ")
-	if e.Key != "" {
-		b.WriteString(e.Key)
-		if e.Value != "" {
-			b.WriteString(" = ")
-			b.WriteString(e.Value)
-		}
-		b.WriteString(": ")
-	}
-	switch {
-	case e.Msg != "":
-		b.WriteString(e.Msg)
-	case e.Err != nil:
-		b.WriteString(e.Err.Error())
-	default:
-		b.WriteString("invalid value")
-	}
-	if e.Msg != "" && e.Err != nil && !e.errInMsg() {
-		b.WriteString(": ")
-		b.WriteString(e.Err.Error())
-	}
-	if e.Allowed != "" {
-		b.WriteString(" (allowed: ")
-		b.WriteString(e.Allowed)
-		b.WriteString(")")
-	}
-	return b.String()
-}
-
-// errInMsg reports whether Msg already says what Err says (template
-// errors are summarised by their reason).
-func (e *FieldError) errInMsg() bool {
-	var te *scpi.TemplateError
-	return errors.As(e.Err, &te) && strings.HasSuffix(e.Msg, te.Reason)
-}
-
-// Unwrap returns the underlying cause.
-func (e *FieldError) Unwrap() error { return e.Err }
+// FieldError is a problem with one key of a profile or bench file: the
+// file, the line, the dotted key (Field), the bad value, what is wrong
+// (Msg), the cause and what is allowed. It is the one field-error type of
+// the program, the same as plan.FieldError.
+type FieldError = fielderr.Error
 
 // problems collects the validation errors of one file.
 type problems struct {
@@ -96,7 +45,7 @@ func (p *problems) addErr(key string, value any, allowed, msg string, err error)
 	p.errs = append(p.errs, &FieldError{
 		File:    p.file,
 		Line:    p.lines.line(key),
-		Key:     key,
+		Field:   key,
 		Value:   formatValue(value),
 		Allowed: allowed,
 		Msg:     msg,
@@ -111,24 +60,7 @@ func (p *problems) err() error {
 	return errors.Join(p.errs...)
 }
 
-func formatValue(v any) string {
-	switch x := v.(type) {
-	case nil:
-		return ""
-	case string:
-		return fmt.Sprintf("%q", x)
-	case float64:
-		return fmt.Sprintf("%g", x)
-	case []float64:
-		parts := make([]string, len(x))
-		for i, f := range x {
-			parts[i] = fmt.Sprintf("%g", f)
-		}
-		return "[" + strings.Join(parts, ", ") + "]"
-	default:
-		return fmt.Sprintf("%v", x)
-	}
-}
+func formatValue(v any) string { return fielderr.FormatValue(v) }
 
 // decodeError turns a go-toml decode error into FieldErrors carrying the
 // file, line and key.
@@ -140,7 +72,7 @@ func decodeError(file string, err error, target any) error {
 			de := &sm.Errors[i]
 			line, _ := de.Position()
 			errs = append(errs, &FieldError{
-				File: file, Line: line, Key: strings.Join(de.Key(), "."),
+				File: file, Line: line, Field: strings.Join(de.Key(), "."),
 				Msg: "unknown key", Allowed: allowedKeys(target, de.Key()),
 			})
 			if len(errs) >= maxProblems {
@@ -152,7 +84,7 @@ func decodeError(file string, err error, target any) error {
 	var de *toml.DecodeError
 	if errors.As(err, &de) {
 		line, _ := de.Position()
-		return &FieldError{File: file, Line: line, Key: strings.Join(de.Key(), "."), Msg: plainDecodeMessage(strings.TrimPrefix(de.Error(), "toml: "))}
+		return &FieldError{File: file, Line: line, Field: strings.Join(de.Key(), "."), Msg: plainDecodeMessage(strings.TrimPrefix(de.Error(), "toml: "))}
 	}
 	return &FieldError{File: file, Msg: "cannot decode", Err: err}
 }
@@ -162,7 +94,7 @@ func decodeError(file string, err error, target any) error {
 func decodeErrorIn(file string, data []byte, err error, target any) error {
 	out := decodeError(file, err, target)
 	var fe *FieldError
-	if errors.As(out, &fe) && fe.Value == "" && fe.Line > 0 && fe.Key != "" {
+	if errors.As(out, &fe) && fe.Value == "" && fe.Line > 0 && fe.Field != "" {
 		fe.Value = valueOnLine(data, fe.Line)
 	}
 	return out

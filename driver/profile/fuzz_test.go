@@ -8,6 +8,7 @@ import (
 
 	"rolloff/configs"
 	"rolloff/driver/profile"
+	"rolloff/driver/sim"
 )
 
 // FuzzDecodeBench feeds arbitrary bench files (against the embedded
@@ -45,6 +46,19 @@ func FuzzDecodeBench(f *testing.F) {
 		}
 		if b.Generator == nil || b.Generator.Generator == nil || !(b.Limits.MaxVrms > 0) {
 			t.Fatalf("accepted a bench without a resolved generator or amplitude limit")
+		}
+		if b.Sim == nil {
+			return
+		}
+		// The simulator's reconciliation of a [sim] table.
+		c, err := sim.FromBenchFile(b)
+		if err != nil {
+			if c != nil {
+				t.Fatal("sim config and error both returned")
+			}
+			if !strings.Contains(err.Error(), "fuzz.toml") {
+				t.Fatalf("error does not name the bench file: %v", err)
+			}
 		}
 	})
 }

@@ -10,6 +10,7 @@ import (
 
 	"rolloff/configs"
 	"rolloff/driver/profile"
+	"rolloff/driver/sim"
 )
 
 // edit applies (old, new) replacements to an embedded file; every old
@@ -94,7 +95,7 @@ func checkBad(t *testing.T, c badCase, text string, err error) {
 	}
 	var found *profile.FieldError
 	for _, fe := range fieldErrors(err) {
-		if fe.Key == c.key && fe.File == wantFile {
+		if fe.Field == c.key && fe.File == wantFile {
 			found = fe
 			break
 		}
@@ -261,7 +262,11 @@ profile = "converter-10db.toml"
 			}
 			fsys := benchFS(t, "", nil, extra)
 			fsys[c.file] = &fstest.MapFile{Data: []byte(text)}
-			_, err := profile.LoadBenchFS(fsys, c.file)
+			b, err := profile.LoadBenchFS(fsys, c.file)
+			if err == nil && b.Sim != nil {
+				// The [sim] table is the simulator's to check.
+				_, err = sim.FromBenchFile(b)
+			}
 			checkBad(t, c, text, err)
 		})
 	}

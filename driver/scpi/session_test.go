@@ -14,6 +14,7 @@ import (
 	"rolloff/driver"
 	"rolloff/driver/transport"
 	"rolloff/driver/transport/replay"
+	"rolloff/internal/scpitest"
 )
 
 func playback(t *testing.T, path string) (*Session, *replay.Playback) {
@@ -184,29 +185,12 @@ func TestInterCommandDelay(t *testing.T) {
 // goroutines are serialised over a real TCP connection: each query gets
 // its own answer.
 func TestSessionConcurrentQueries(t *testing.T) {
-	ln, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer ln.Close()
-	go func() {
-		c, err := ln.Accept()
-		if err != nil {
-			return
-		}
-		defer c.Close()
-		r := bufio.NewReader(c)
-		for {
-			line, err := r.ReadString('\n')
-			if err != nil {
-				return
-			}
-			// "ECHO? n" answers n; the pause widens any race window.
-			time.Sleep(time.Millisecond)
-			fmt.Fprintf(c, "%s\n", strings.TrimSpace(strings.TrimPrefix(line, "ECHO?")))
-		}
-	}()
-	conn, err := transport.Open(t.Context(), "tcp://"+ln.Addr().String(), transport.Opts{})
+	// "ECHO? n" answers n; the pause widens any race window.
+	addr := scpitest.Listen(t, &scpitest.Instrument{Delay: time.Millisecond, Handle: func(cmd string) (string, bool) {
+		n, ok := strings.CutPrefix(cmd, "ECHO?")
+		return strings.TrimSpace(n), ok
+	}})
+	conn, err := transport.Open(t.Context(), addr, transport.Opts{})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -53,6 +53,10 @@ func (e *TemplateError) Error() string {
 // Unwrap returns Err.
 func (e *TemplateError) Unwrap() error { return e.Err }
 
+// Summary returns the reason alone, for a message that names the key and
+// value itself.
+func (e *TemplateError) Summary() string { return e.Reason }
+
 // Compile parses a profile command. key names the profile entry in errors.
 // The text must be printable ASCII without ';' (a second command), quotes
 // (string data is not templated), CR or LF (terminators); placeholders are

@@ -9,6 +9,7 @@ import (
 
 	"rolloff/driver"
 	"rolloff/driver/sim/model"
+	"rolloff/internal/fielderr"
 )
 
 // Config describes a simulated bench. Its TOML keys are lower_snake_case
@@ -248,35 +249,25 @@ func DemoConfig() Config {
 	}
 }
 
-// ConfigError is one invalid setting: the TOML key path, the bad value and
-// what is allowed.
-type ConfigError struct {
-	Key     string // e.g. "dut.sections[1].q"
-	Value   any
-	Allowed string
-}
-
-// Error implements error.
-func (e *ConfigError) Error() string {
-	v := fmt.Sprint(e.Value)
-	if s, ok := e.Value.(string); ok {
-		v = fmt.Sprintf("%q", s)
-	}
-	return fmt.Sprintf("sim config: %s = %s: allowed %s", e.Key, v, e.Allowed)
-}
+// ConfigError is one invalid setting: Field is the TOML key path in the
+// [sim] table (e.g. "dut.sections[1].q"), Value the bad value, Allowed
+// what is allowed. It is the program's one field-error type, the same as
+// profile.FieldError.
+type ConfigError = fielderr.Error
 
 // ErrConfig is wrapped by every Validate error.
 var ErrConfig = errors.New("sim: invalid config")
 
-// Is makes errors.Is(err, ErrConfig) true.
-func (e *ConfigError) Is(target error) bool { return target == ErrConfig }
+// msgRefused is what every *ConfigError says is wrong.
+const msgRefused = "refused by the simulator"
 
-// Validate checks every setting and returns all problems joined; each is a
-// *ConfigError naming the key path, value and allowed range.
+// Validate checks every setting and returns ErrConfig wrapping all the
+// problems joined; each is a *ConfigError naming the key path, value and
+// allowed range.
 func (c *Config) Validate() error {
 	var errs []error
 	bad := func(key string, v any, allowed string) {
-		errs = append(errs, &ConfigError{Key: key, Value: v, Allowed: allowed})
+		errs = append(errs, &ConfigError{Field: key, Value: fielderr.FormatValue(v), Msg: msgRefused, Allowed: allowed})
 	}
 	finite := func(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 	between := func(key string, v, lo, hi float64) {
@@ -424,7 +415,10 @@ func (c *Config) Validate() error {
 	}
 
 	idn("switch.idn", c.Switch.IDN)
-	return errors.Join(errs...)
+	if len(errs) == 0 {
+		return nil
+	}
+	return fmt.Errorf("%w: %w", ErrConfig, errors.Join(errs...))
 }
 
 // checkIDN checks an *IDN? answer: four comma-separated non-empty fields

@@ -53,8 +53,8 @@ func TestValidateNamesKey(t *testing.T) {
 			t.Errorf("%s: error %v", tc.key, err)
 			continue
 		}
-		if ce.Key != tc.key || ce.Allowed == "" || !strings.Contains(err.Error(), tc.key) {
-			t.Errorf("error %q names %q, want %q", err, ce.Key, tc.key)
+		if ce.Field != tc.key || ce.Allowed == "" || !strings.Contains(err.Error(), tc.key) {
+			t.Errorf("error %q names %q, want %q", err, ce.Field, tc.key)
 		}
 		if _, err := New(c); err == nil {
 			t.Errorf("%s: New accepted the bad config", tc.key)

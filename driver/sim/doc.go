@@ -52,8 +52,10 @@
 //
 // # Configuration keys
 //
-// A bench file's table decodes into Config (TOML, lower_snake_case keys;
-// start from DemoConfig so that omitted keys keep demo values):
+// A bench file's [sim] table decodes into Config (TOML, lower_snake_case
+// keys; start from DemoConfig so that omitted keys keep demo values).
+// FromBenchFile does that for a decoded bench file and reconciles the
+// result with the profiles the file names:
 //
 //	seed, time_scale, line_hz, error_queue_len
 //	[generator] idn, min_freq_hz, max_freq_hz, min_vrms, max_vrms,

@@ -30,6 +30,11 @@ const (
 // Final reports whether s is an end state (done, aborted or failed).
 func (s State) Final() bool { return s == Done || s == Aborted || s == Failed }
 
+// Ended reports whether no sweep is running or due in state s: a final
+// state, or interrupted (left unfinished by a crash or a shutdown, and
+// resumable).
+func (s State) Ended() bool { return s.Final() || s == Interrupted }
+
 // Type is an event's kind, the "type" field of every live message.
 type Type string
 
@@ -53,13 +58,14 @@ type Prompt struct {
 	FreqHz     float64 `json:"freq_hz"`
 }
 
-// Progress is where the run is.
+// Progress is where the run is. ETA and Elapsed are wall time; JSON
+// carries them as seconds, "eta_s" and "elapsed_s" (see MarshalJSON).
 type Progress struct {
-	Done    int     `json:"done"`
-	Total   int     `json:"total"`
-	FreqHz  float64 `json:"freq_hz"`
-	ETASec  float64 `json:"eta_s"`
-	Elapsed float64 `json:"elapsed_s"`
+	Done    int
+	Total   int
+	FreqHz  float64
+	ETA     time.Duration
+	Elapsed time.Duration
 }
 
 // Event is one entry of a run's timeline.

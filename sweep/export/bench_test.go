@@ -48,7 +48,7 @@ func BenchmarkAnalyzeExport10k(b *testing.B) {
 			b.Fatal(err)
 		}
 		for _, f := range []string{"png", "svg"} {
-			if err := WritePlot(io.Discard, f, pts, res); err != nil {
+			if err := WritePlot(io.Discard, f, pts, res, PlotOptions{}); err != nil {
 				b.Fatal(err)
 			}
 		}

@@ -86,13 +86,9 @@ func interpOf(r *analysis.Result) (g, u *analysis.Interpolant, err error) {
 }
 
 // DiffPlot writes the difference plot B − A (dB) with its uncertainty band
-// and a zero line, for before/after comparisons.
-func DiffPlot(w io.Writer, format string, a, b Series) error {
-	return DiffPlotWith(w, format, PlotOptions{}, a, b)
-}
-
-// DiffPlotWith is DiffPlot with a title and size.
-func DiffPlotWith(w io.Writer, format string, po PlotOptions, a, b Series) error {
+// and a zero line, for before/after comparisons. The zero PlotOptions
+// gives an untitled plot of the default size.
+func DiffPlot(w io.Writer, format string, po PlotOptions, a, b Series) error {
 	d, err := Diff(a, b)
 	if err != nil {
 		return err

@@ -17,6 +17,7 @@ import (
 
 	"rolloff/sweep/analysis"
 	"rolloff/sweep/point"
+	"rolloff/sweep/store"
 )
 
 var update = flag.Bool("update", false, "rewrite the golden images in testdata")
@@ -116,22 +117,41 @@ func TestReadCSVErrors(t *testing.T) {
 	}
 }
 
-func TestReadJSONL(t *testing.T) {
+// TestLoadRunJSONL reads a run directory's points.jsonl through the
+// store's reader: a torn end is left out, a bad line before it names the
+// line.
+func TestLoadRunJSONL(t *testing.T) {
 	var b bytes.Buffer
-	for _, p := range scipyPoints(t, "bessel_lp4")[:5] {
+	for i, p := range scipyPoints(t, "bessel_lp4")[:5] {
+		p.Seq, p.Index = i, i
 		j, _ := json.Marshal(p)
 		b.Write(j)
 		b.WriteByte('\n')
 	}
 	b.WriteString(`{"seq": 5, "freq_h`) // torn by a crash
-	pts, err := ReadJSONL(bytes.NewReader(b.Bytes()), "points.jsonl")
+	dir := t.TempDir()
+	if err := os.WriteFile(filepath.Join(dir, store.FilePoints), b.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	pts, err := LoadRun(dir, ReadOptions{})
 	if err != nil || len(pts) != 5 {
 		t.Fatalf("%d points, %v", len(pts), err)
 	}
-	_, err = ReadJSONL(strings.NewReader("{\"seq\":1}\nnot json\n{\"seq\":2}\n"), "points.jsonl")
-	if err == nil || !strings.Contains(err.Error(), "points.jsonl:2") {
+	if err := os.WriteFile(filepath.Join(dir, store.FilePoints), []byte("{\"seq\":1}\nnot json\n{\"seq\":2}\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, err = LoadRun(dir, ReadOptions{})
+	if !errors.Is(err, store.ErrCorrupt) || !strings.Contains(err.Error(), "points.jsonl:2") {
 		t.Errorf("bad middle line: %v", err)
 	}
+}
+
+// dirWriter writes a run's files into a directory with the store's
+// atomic writer.
+type dirWriter string
+
+func (d dirWriter) WriteFileAtomic(name string, data []byte) error {
+	return store.WriteFileAtomic(filepath.Join(string(d), name), data)
 }
 
 func TestWriteAll(t *testing.T) {
@@ -146,7 +166,7 @@ func TestWriteAll(t *testing.T) {
 		t.Fatal(err)
 	}
 	dir := t.TempDir()
-	if err := WriteAll(dir, pts, res); err != nil {
+	if err := WriteAll(dirWriter(dir), pts, res); err != nil {
 		t.Fatal(err)
 	}
 	ents, _ := os.ReadDir(dir)
@@ -157,7 +177,7 @@ func TestWriteAll(t *testing.T) {
 	if strings.Join(names, " ") != "response.csv response.pdf response.png response.svg result.json" {
 		t.Errorf("files %v (no temporary files may remain)", names)
 	}
-	data, _ := os.ReadFile(filepath.Join(dir, ResultJSON))
+	data, _ := os.ReadFile(filepath.Join(dir, store.FileResult))
 	var obj map[string]any
 	if err := json.Unmarshal(data, &obj); err != nil {
 		t.Fatal(err)
@@ -172,14 +192,14 @@ func TestWriteAll(t *testing.T) {
 	if obj["low_beyond_hz"] != nil || obj["low_hz"] == nil {
 		t.Errorf("low_hz %v, low_beyond_hz %v", obj["low_hz"], obj["low_beyond_hz"])
 	}
-	magic := map[string]string{ResponsePNG: "\x89PNG", ResponseSVG: "<?xml", ResponsePDF: "%PDF"}
+	magic := map[string]string{store.FileResponsePNG: "\x89PNG", store.FileResponseSVG: "<?xml", store.FileResponsePDF: "%PDF"}
 	for name, want := range magic {
 		b, _ := os.ReadFile(filepath.Join(dir, name))
 		if !bytes.HasPrefix(b, []byte(want)) {
 			t.Errorf("%s starts %q", name, b[:min(8, len(b))])
 		}
 	}
-	svg, _ := os.ReadFile(filepath.Join(dir, ResponseSVG))
+	svg, _ := os.ReadFile(filepath.Join(dir, store.FileResponseSVG))
 	for _, s := range []string{"excluded (flagged)", "limit mask", "1 kHz", "100 kHz", "47.00 Hz ±"} {
 		if !bytes.Contains(svg, []byte(s)) {
 			t.Errorf("svg lacks %q", s)
@@ -291,7 +311,7 @@ func TestGoldenResponse(t *testing.T) {
 		t.Fatal(err)
 	}
 	var buf bytes.Buffer
-	if err := WritePlotWith(&buf, "png", pts, res, PlotOptions{Title: "band-pass prototype"}); err != nil {
+	if err := WritePlot(&buf, "png", pts, res, PlotOptions{Title: "band-pass prototype"}); err != nil {
 		t.Fatal(err)
 	}
 	golden(t, "response", buf.Bytes())
@@ -301,12 +321,12 @@ func TestGoldenOverlayDiff(t *testing.T) {
 	a := scipyPoints(t, "butter_lp3")
 	b := scipyPoints(t, "bessel_lp4")
 	var buf bytes.Buffer
-	if err := Overlay(&buf, "png", Series{Name: "third-order", Points: a}, Series{Name: "fourth-order", Points: b}); err != nil {
+	if err := Overlay(&buf, "png", PlotOptions{}, Series{Name: "third-order", Points: a}, Series{Name: "fourth-order", Points: b}); err != nil {
 		t.Fatal(err)
 	}
 	golden(t, "overlay", buf.Bytes())
 	buf.Reset()
-	if err := DiffPlot(&buf, "png", Series{Name: "before", Points: a}, Series{Name: "after", Points: b}); err != nil {
+	if err := DiffPlot(&buf, "png", PlotOptions{}, Series{Name: "before", Points: a}, Series{Name: "after", Points: b}); err != nil {
 		t.Fatal(err)
 	}
 	golden(t, "diff", buf.Bytes())
@@ -324,7 +344,7 @@ func TestGoldenOverlayDiff(t *testing.T) {
 			t.Errorf("difference at %v Hz: %v dB", f, d.DiffDB[i])
 		}
 	}
-	if err := WritePlot(&buf, "gif", a, nil); !errors.Is(err, ErrFormat) {
+	if err := WritePlot(&buf, "gif", a, nil, PlotOptions{}); !errors.Is(err, ErrFormat) {
 		t.Errorf("gif: %v", err)
 	}
 }

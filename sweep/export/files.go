@@ -5,21 +5,18 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
-	"os"
 	"path/filepath"
 
 	"rolloff/sweep/analysis"
 	"rolloff/sweep/point"
+	"rolloff/sweep/store"
 )
 
-// File names WriteAll writes.
-const (
-	ResponseCSV = "response.csv"
-	ResultJSON  = "result.json"
-	ResponsePNG = "response.png"
-	ResponseSVG = "response.svg"
-	ResponsePDF = "response.pdf"
-)
+// FileWriter stores a whole named file of a run; *store.Run is one, and
+// writes each file atomically.
+type FileWriter interface {
+	WriteFileAtomic(name string, data []byte) error
+}
 
 // WriteJSON writes res as result.json: one indented JSON object.
 func WriteJSON(w io.Writer, res *analysis.Result) error {
@@ -32,78 +29,49 @@ func WriteJSON(w io.Writer, res *analysis.Result) error {
 	return err
 }
 
-// WriteAll writes response.csv, result.json, response.png, response.svg and
-// response.pdf into dir (which must exist), each atomically. res may be nil
-// for a response that cannot be analysed: then only response.csv is
-// written.
-func WriteAll(dir string, pts []point.Point, res *analysis.Result) error {
-	return writeAll(dir, pts, res, []string{ResponseCSV, ResultJSON, ResponsePNG, ResponseSVG, ResponsePDF})
-}
-
-func writeAll(dir string, pts []point.Point, res *analysis.Result, files []string) error {
-	for _, name := range files {
-		var buf bytes.Buffer
-		var err error
-		switch name {
-		case ResponseCSV:
-			err = WriteCSV(&buf, pts, res)
-		case ResultJSON:
-			if res == nil {
-				continue
-			}
-			err = WriteJSON(&buf, res)
-		default:
-			if res == nil {
-				continue
-			}
-			err = WritePlot(&buf, filepath.Ext(name), pts, res)
+// Render writes the result file called name (one of store.ResultFiles:
+// response.csv, result.json, response.png, response.svg or response.pdf)
+// to w. res may be nil only for response.csv.
+func Render(w io.Writer, name string, pts []point.Point, res *analysis.Result) error {
+	var err error
+	switch name {
+	case store.FileResponseCSV:
+		err = WriteCSV(w, pts, res)
+	case store.FileResult:
+		if res == nil {
+			return fmt.Errorf("export: %s: no analysis result", name)
 		}
-		if err != nil {
-			return fmt.Errorf("export: %s: %w", name, err)
+		err = WriteJSON(w, res)
+	case store.FileResponsePNG, store.FileResponseSVG, store.FileResponsePDF:
+		if res == nil {
+			return fmt.Errorf("export: %s: no analysis result", name)
 		}
-		if err := WriteFileAtomic(filepath.Join(dir, name), buf.Bytes()); err != nil {
-			return err
-		}
+		err = WritePlot(w, filepath.Ext(name), pts, res, PlotOptions{})
+	default:
+		return fmt.Errorf("export: %q is not a result file", name)
+	}
+	if err != nil {
+		return fmt.Errorf("export: %s: %w", name, err)
 	}
 	return nil
 }
 
-// WriteFileAtomic replaces path with data: it writes a temporary file in
-// the same directory, syncs it, renames it over path and syncs the
-// directory, so that a crash leaves either the old or the new file.
-func WriteFileAtomic(path string, data []byte) (err error) {
-	dir := filepath.Dir(path)
-	f, err := os.CreateTemp(dir, "."+filepath.Base(path)+".tmp*")
-	if err != nil {
-		return fmt.Errorf("export: %w", err)
-	}
-	tmp := f.Name()
-	defer func() {
-		if err != nil {
-			os.Remove(tmp)
+// WriteAll renders response.csv, result.json, response.png, response.svg
+// and response.pdf and hands each, whole, to dst (a *store.Run writes each
+// atomically in the run directory). res may be nil for a response that
+// cannot be analysed: then only response.csv is written.
+func WriteAll(dst FileWriter, pts []point.Point, res *analysis.Result) error {
+	for _, name := range store.ResultFiles() {
+		if res == nil && name != store.FileResponseCSV {
+			continue
 		}
-	}()
-	if _, err = f.Write(data); err != nil {
-		f.Close()
-		return fmt.Errorf("export: %s: %w", path, err)
-	}
-	if err = f.Chmod(0o644); err != nil {
-		f.Close()
-		return fmt.Errorf("export: %s: %w", path, err)
-	}
-	if err = f.Sync(); err != nil {
-		f.Close()
-		return fmt.Errorf("export: %s: %w", path, err)
-	}
-	if err = f.Close(); err != nil {
-		return fmt.Errorf("export: %s: %w", path, err)
-	}
-	if err = os.Rename(tmp, path); err != nil {
-		return fmt.Errorf("export: %w", err)
-	}
-	if d, derr := os.Open(dir); derr == nil {
-		d.Sync()
-		d.Close()
+		var buf bytes.Buffer
+		if err := Render(&buf, name, pts, res); err != nil {
+			return err
+		}
+		if err := dst.WriteFileAtomic(name, buf.Bytes()); err != nil {
+			return fmt.Errorf("export: %w", err)
+		}
 	}
 	return nil
 }

@@ -1,37 +1,42 @@
 package export
 
 import (
-	"bufio"
-	"bytes"
-	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
+	"io/fs"
 	"os"
 	"path/filepath"
 
 	"rolloff/sweep/point"
+	"rolloff/sweep/store"
 )
 
-// PointsJSONL is the name of a run directory's point log.
-const PointsJSONL = "points.jsonl"
-
 // LoadRun reads a response from path: a CSV file (see ReadCSV), or a run
-// directory holding points.jsonl (preferred) or response.csv.
+// directory holding points.jsonl (preferred, read by store.ReadPoints) or
+// response.csv. It only reads: a torn end of points.jsonl is left out, not
+// cut.
 func LoadRun(path string, opts ReadOptions) ([]point.Point, error) {
 	st, err := os.Stat(path)
 	if err != nil {
 		return nil, err
 	}
 	if st.IsDir() {
-		jl := filepath.Join(path, PointsJSONL)
-		if f, err := os.Open(jl); err == nil {
+		jl := filepath.Join(path, store.FilePoints)
+		f, err := os.Open(jl)
+		if err == nil {
 			defer f.Close()
-			return ReadJSONL(f, jl)
+			pts, err := store.ReadPoints(f, jl)
+			if err == nil && len(pts) == 0 {
+				err = fmt.Errorf("export: %s: no points", jl)
+			}
+			return pts, err
 		}
-		path = filepath.Join(path, ResponseCSV)
+		if !errors.Is(err, fs.ErrNotExist) {
+			return nil, err
+		}
+		path = filepath.Join(path, store.FileResponseCSV)
 		if _, err := os.Stat(path); err != nil {
-			return nil, fmt.Errorf("export: %s: a run directory needs %s or %s", filepath.Dir(path), PointsJSONL, ResponseCSV)
+			return nil, fmt.Errorf("export: %s: a run directory needs %s or %s", filepath.Dir(path), store.FilePoints, store.FileResponseCSV)
 		}
 	}
 	f, err := os.Open(path)
@@ -40,37 +45,4 @@ func LoadRun(path string, opts ReadOptions) ([]point.Point, error) {
 	}
 	defer f.Close()
 	return ReadCSV(f, path, opts)
-}
-
-// ReadJSONL reads points stored one JSON object a line (a run's
-// points.jsonl). Blank lines are skipped; a last line cut short by a crash
-// (no newline, not valid JSON) is ignored. Any other bad line is an error
-// naming the line.
-func ReadJSONL(r io.Reader, name string) ([]point.Point, error) {
-	br := bufio.NewReaderSize(r, 1<<16)
-	var pts []point.Point
-	for line := 1; ; line++ {
-		b, err := br.ReadBytes('\n')
-		if err != nil && !errors.Is(err, io.EOF) {
-			return nil, fmt.Errorf("export: %s: %w", name, err)
-		}
-		torn := errors.Is(err, io.EOF)
-		if t := bytes.TrimSpace(b); len(t) > 0 {
-			var p point.Point
-			if jerr := json.Unmarshal(t, &p); jerr != nil {
-				if torn {
-					break
-				}
-				return nil, fmt.Errorf("export: %s:%d: %v", name, line, jerr)
-			}
-			pts = append(pts, p)
-		}
-		if torn {
-			break
-		}
-	}
-	if len(pts) == 0 {
-		return nil, fmt.Errorf("export: %s: no points", name)
-	}
-	return pts, nil
 }

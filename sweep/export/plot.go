@@ -679,13 +679,9 @@ func render(w io.Writer, p *plot.Plot, format string, po PlotOptions) error {
 // the measured points, the uncertainty band (k = 2), the reference and
 // corner levels, the corners labelled with their values, the mask lines and
 // the flagged points. res may be nil: pts are then analysed with default
-// options, falling back to the passband maximum as reference.
-func WritePlot(w io.Writer, format string, pts []point.Point, res *analysis.Result) error {
-	return WritePlotWith(w, format, pts, res, PlotOptions{})
-}
-
-// WritePlotWith is WritePlot with a title and size.
-func WritePlotWith(w io.Writer, format string, pts []point.Point, res *analysis.Result, po PlotOptions) error {
+// options, falling back to the passband maximum as reference. The zero
+// PlotOptions gives an untitled plot of the default size.
+func WritePlot(w io.Writer, format string, pts []point.Point, res *analysis.Result, po PlotOptions) error {
 	if res == nil {
 		var err error
 		res, err = analysis.Analyze(pts, analysis.Options{})
@@ -705,13 +701,8 @@ func WritePlotWith(w io.Writer, format string, pts []point.Point, res *analysis.
 
 // Overlay writes the gain curves of several runs on one plot, each with
 // its own line style and marker shape, named in the legend with its upper
-// corner.
-func Overlay(w io.Writer, format string, series ...Series) error {
-	return OverlayWith(w, format, PlotOptions{}, series...)
-}
-
-// OverlayWith is Overlay with a title and size.
-func OverlayWith(w io.Writer, format string, po PlotOptions, series ...Series) error {
+// corner. The zero PlotOptions gives an untitled plot of the default size.
+func Overlay(w io.Writer, format string, po PlotOptions, series ...Series) error {
 	if len(series) == 0 {
 		return errors.New("export: overlay of no runs")
 	}

@@ -186,7 +186,7 @@ func (q *Queue) adopt(ctx context.Context, s Stored) {
 	if s.State == event.Interrupted {
 		e.info.Message = "found unfinished; resume to continue"
 	}
-	if !s.State.Final() && s.State != event.Interrupted {
+	if !s.State.Ended() {
 		e.info.External = true
 		if evs, err := q.opts.Backend.Events(ctx, s.ID, 0); err == nil {
 			for _, ev := range evs {
@@ -232,7 +232,7 @@ func (q *Queue) follow() {
 				}
 				q.mu.Lock()
 				applyTo(&e.info, ev)
-				if ev.Type == event.TypeState && (ev.State.Final() || ev.State == event.Interrupted) {
+				if ev.Type == event.TypeState && ev.State.Ended() {
 					e.info.External = false
 				}
 				q.mu.Unlock()
@@ -603,7 +603,7 @@ func (q *Queue) runOne(e *entry) {
 	}
 	werr := run.Wait()
 	q.mu.Lock()
-	if !e.info.State.Final() && e.info.State != event.Interrupted {
+	if !e.info.State.Ended() {
 		// The run ended without a final state event: shutdown or a
 		// crash of the scheduler.
 		from := e.info.State

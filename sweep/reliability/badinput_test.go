@@ -183,7 +183,7 @@ func profileKeys(err error) []string {
 			return
 		}
 		if fe, ok := e.(*profile.FieldError); ok {
-			out = append(out, fe.Key)
+			out = append(out, fe.Field)
 			return
 		}
 		switch u := e.(type) {

@@ -102,7 +102,11 @@ address = %q
 func startSim(t *testing.T, scale float64) *sim.Bench {
 	t.Helper()
 	cfg := simBench(t, scale)
-	s, err := sim.New(*cfg.Sim)
+	sc, err := sim.FromBenchFile(cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := sim.New(*sc)
 	if err != nil {
 		t.Fatal(err)
 	}

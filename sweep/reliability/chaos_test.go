@@ -37,7 +37,7 @@ func TestChaos(t *testing.T) {
 			}
 			seed = n
 		}
-		g := openRig(t, 100, "", func(c *profile.Bench) { c.Voltmeter.DMM.Framing.QueryTimeoutS = 0.4 })
+		g := openRig(t, 100, "", func(c *profile.BenchFile) { c.Voltmeter.DMM.Framing.QueryTimeoutS = 0.4 })
 		p, freqs := loadPlan(t, "plan.toml", chaosPlanTOML, g.b)
 		rng := rand.New(rand.NewPCG(seed, 1))
 		vm, gen := g.sim.Faults(sim.RoleVoltmeter), g.sim.Faults(sim.RoleGenerator)

@@ -16,7 +16,7 @@ import (
 // faultCase is one fault injected into a sweep on the simulated bench.
 type faultCase struct {
 	name string
-	tune func(*profile.Bench)
+	tune func(*profile.BenchFile)
 	// at is the number of points acknowledged before the fault is armed.
 	at     int
 	inject func(s *sim.Bench)
@@ -62,7 +62,7 @@ func TestFaults(t *testing.T) {
 			final: []event.State{event.Failed}, cause: []string{"disconnected", "gave up"}},
 		{name: "voltmeter answer delayed past the query time-out", at: 2,
 			// A 0.4 s query time-out (the profile's framing), an answer 1 s late.
-			tune:   func(c *profile.Bench) { c.Voltmeter.DMM.Framing.QueryTimeoutS = 0.4 },
+			tune:   func(c *profile.BenchFile) { c.Voltmeter.DMM.Framing.QueryTimeoutS = 0.4 },
 			inject: func(s *sim.Bench) { s.Faults(sim.RoleVoltmeter).DelayNext(time.Second) },
 			role:   sim.RoleVoltmeter, kind: sim.FaultDelay,
 			final: []event.State{event.Done}, logged: []string{"timeout"}},

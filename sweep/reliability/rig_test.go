@@ -54,13 +54,13 @@ var longPlanTOML = strings.Replace(planTOML, "points_per_decade = 3", "points_pe
 
 // simBench loads the demo simulated bench file at a time scale (model
 // seconds per wall second).
-func simBench(t *testing.T, scale float64) *profile.Bench {
+func simBench(t *testing.T, scale float64) *profile.BenchFile {
 	t.Helper()
 	cfg, err := configs.LoadBench(configs.SimBench)
 	if err != nil {
 		t.Fatal(err)
 	}
-	cfg.Sim.TimeScale, cfg.TimeScale = scale, scale
+	cfg.TimeScale = scale
 	return cfg
 }
 
@@ -86,7 +86,7 @@ func loadPlan(t *testing.T, name, text string, b *bench.Bench) (*plan.Plan, []pl
 // transports, with a run store.
 type rig struct {
 	t     *testing.T
-	cfg   *profile.Bench
+	cfg   *profile.BenchFile
 	b     *bench.Bench
 	sim   *sim.Bench // the simulator (b.Sim, or one the test started)
 	st    *store.Store
@@ -96,7 +96,7 @@ type rig struct {
 
 // openRig opens the demo simulated bench at scale, after tune adjusts
 // its configuration, with a store in a fresh directory (or storeDir).
-func openRig(t *testing.T, scale float64, storeDir string, tune func(*profile.Bench)) *rig {
+func openRig(t *testing.T, scale float64, storeDir string, tune func(*profile.BenchFile)) *rig {
 	t.Helper()
 	cfg := simBench(t, scale)
 	if tune != nil {

@@ -39,6 +39,19 @@
 //     the step is larger than predicted, the dwell is extended.
 //  5. Store the point (the journal fsyncs it), then tell the subscribers.
 //
+// In the code one attempt at a point is a pointRun, one method per phase
+// (predict, step, planDwell, read with its reactions to each reading,
+// assemble, learn); the converter model it plans with is convModel on
+// settle.Averager.
+//
+// # The end
+//
+// A done run ends with the caller's finish step, Opts.Finish (package
+// sweep/sched/finish: the analysis and the exports into the run
+// directory), whose result JSON becomes the run's result event. The
+// scheduler itself links neither the analysis's renderers nor the
+// exports.
+//
 // # The converter's output hold
 //
 // A converter that freezes its output for HoldS every HoldIntervalS could
@@ -79,8 +92,10 @@
 //
 // # Time
 //
-// Durations are physical seconds; Instruments.TimeScale (model seconds
-// per wall second on a simulated bench) converts them to wall time. Disk
+// Durations are physical seconds (float64, named with an S suffix);
+// Instruments.TimeScale (model seconds per wall second on a simulated
+// bench) converts them to wall time, which is a time.Duration (the
+// clock, Status.ETA and Status.Elapsed). Disk
 // writes happen in the journal's goroutine so that an fsync never delays
 // the sweep.
 //

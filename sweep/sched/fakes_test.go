@@ -15,6 +15,7 @@ import (
 	"rolloff/sweep/event"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/point"
+	"rolloff/sweep/settle"
 )
 
 // fakeClock is a virtual wall clock: Sleep advances it at once.
@@ -72,7 +73,7 @@ type chain struct {
 	ranges    []driver.Range
 	window    driver.Window
 	rangeIdx  int
-	y, u, ty  float64 // mean square state, target, time of state (input Vrms², s)
+	avg       settle.Averager // the mean square state (input Vrms², s)
 	hist      []segment
 	holdEvery float64
 	holdS     float64
@@ -115,39 +116,44 @@ func (c *chain) dutGain(f float64) float64 {
 	return cmplx.Abs(h)
 }
 
-// segment is the converter's state from ty on: y, heading for u.
-type segment struct{ ty, y, u, tau float64 }
+// segment is the converter's state in force from avg.T on, on a range of
+// time constant tau: the scheduler's own model type, whose closed form
+// sweep/settle tests against the ODE.
+type segment struct {
+	avg settle.Averager
+	tau float64
+}
 
 // stateAt returns the converter's mean square at t (no lock), from the
 // segment in force at t (so that a hold can show a past value).
 func (c *chain) stateAt(t float64) float64 {
-	sg := segment{c.ty, c.y, c.u, c.ranges[c.rangeIdx].TimeConstantS}
-	for i := len(c.hist) - 1; i >= 0 && t < sg.ty; i-- {
+	sg := segment{c.avg, c.ranges[c.rangeIdx].TimeConstantS}
+	for i := len(c.hist) - 1; i >= 0 && t < sg.avg.T; i-- {
 		sg = c.hist[i]
 	}
-	return sg.u + (sg.y-sg.u)*math.Exp(-(t-sg.ty)/sg.tau)
+	return sg.avg.At(t, sg.tau)
 }
 
-// mark saves the segment in force before a change (no lock).
-func (c *chain) mark() {
-	c.hist = append(c.hist, segment{c.ty, c.y, c.u, c.ranges[c.rangeIdx].TimeConstantS})
+// mark saves the segment in force before a change at t (no lock) and
+// returns the state at t.
+func (c *chain) mark(t float64) float64 {
+	y := c.stateAt(t)
+	c.hist = append(c.hist, segment{c.avg, c.ranges[c.rangeIdx].TimeConstantS})
 	if len(c.hist) > 64 {
 		c.hist = c.hist[len(c.hist)-64:]
 	}
+	return y
 }
 
 // input re-targets the converter after a change (no lock).
 func (c *chain) input() {
 	t := c.now()
-	c.y = c.stateAt(t)
-	c.mark()
-	c.ty = t
+	u := 0.0
 	if c.output {
 		v := c.ampVrms * c.dutGain(c.freqHz)
-		c.u = v * v
-	} else {
-		c.u = 0
+		u = v * v
 	}
+	c.avg = settle.Averager{T: t, Y: c.mark(t), U: u}
 }
 
 func (c *chain) SetFrequency(ctx context.Context, f float64) error {
@@ -235,9 +241,7 @@ func (c *chain) selectRange(i int) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	t := c.now()
-	c.y = c.stateAt(t)
-	c.mark()
-	c.ty = t
+	c.avg = settle.Averager{T: t, Y: c.mark(t), U: c.avg.U}
 	c.rangeIdx = i
 	if c.output {
 		c.switchedLive++

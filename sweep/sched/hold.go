@@ -40,20 +40,20 @@ func (s *sweeper) holdGuard(tStep, dwell, v1 float64, known bool) (notBefore, pr
 	}
 	tol := s.plan.Settle.Tolerance
 	switch {
-	case dwell > s.plan.Settle.MinDwellS || !known || !(s.vRef > 0):
-		s.tOK, s.vRef = tStep+dwell, v1
-		readS := s.reading.TimeS(s.meter())
+	case dwell > s.plan.Settle.MinDwellS || !known || !(s.hold.vRef > 0):
+		s.hold.tOK, s.hold.vRef = tStep+dwell, v1
+		readS := s.bench.reading.TimeS(s.meter())
 		if p := dwell - s.tau()*math.Log(1.5); p > readS && p < dwell {
 			return dwell, p
 		}
 		return dwell, -1
-	case s.holdKnown:
+	case s.hold.known:
 		// The schedule is known: holdAhead keeps the window out of holds.
 		return dwell, -1
-	case math.Abs(v1/s.vRef-1)+s.predErr(s.refining) > tol/2:
-		s.tOK, s.vRef = tStep, v1
+	case math.Abs(v1/s.hold.vRef-1)+s.pred.err(s.pred.refining) > tol/2:
+		s.hold.tOK, s.hold.vRef = tStep, v1
 	}
-	return math.Max(dwell, s.tOK+s.inst.HoldS-tStep), -1
+	return math.Max(dwell, s.hold.tOK+s.inst.HoldS-tStep), -1
 }
 
 // holdSuspect reports whether the accepted window (mean wV, first reading
@@ -82,8 +82,8 @@ func holdSuspect(tau, y0, v1, pTS, pV, wTS, wV, tol float64) bool {
 func (s *sweeper) observeDwell(ctx context.Context, tStep, until, y0, v1 float64, known bool) error {
 	r := s.r
 	tau := s.tau()
-	readS := s.reading.TimeS(s.meter())
-	if s.holdKnown || s.inst.HoldS <= 0 || s.inst.HoldIntervalS <= 0 || tau <= 0 || s.inst.Converter == nil || s.inst.DCVoltmeter == nil {
+	readS := s.bench.reading.TimeS(s.meter())
+	if s.hold.known || s.inst.HoldS <= 0 || s.inst.HoldIntervalS <= 0 || tau <= 0 || s.inst.Converter == nil || s.inst.DCVoltmeter == nil {
 		return nil
 	}
 	if !known {
@@ -139,38 +139,47 @@ func (s *sweeper) observeDwell(ctx context.Context, tStep, until, y0, v1 float64
 	return nil
 }
 
-// learnHold records that a hold began between lo and hi (physical s):
-// holds recur every HoldIntervalS, so later ones are expected in the
-// same window shifted by whole intervals. A later detection narrows the
-// window to the overlap of both.
-func (s *sweeper) learnHold(lo, hi float64) {
-	iv := s.inst.HoldIntervalS
+// learnHold records that a hold began between lo and hi (physical s).
+func (s *sweeper) learnHold(lo, hi float64) { s.hold.learn(lo, hi, s.inst.HoldIntervalS) }
+
+// holdAhead returns the end (physical s) of a hold of the learnt schedule
+// that may overlap [t0, t1], or 0.
+func (s *sweeper) holdAhead(t0, t1 float64) float64 {
+	return s.hold.ahead(t0, t1, s.inst.HoldIntervalS, s.inst.HoldS)
+}
+
+// learn records that a hold began between lo and hi (physical s): holds
+// recur every ivS, so later ones are expected in the same window shifted
+// by whole intervals. A later detection narrows the window to the
+// overlap of both.
+func (h *holdSchedule) learn(lo, hi, ivS float64) {
+	iv := ivS
 	if iv <= 0 || hi < lo {
 		return
 	}
-	if s.holdKnown {
+	if h.known {
 		// Bring the known window next to the new one and intersect.
-		k := math.Round((lo - s.holdLo) / iv)
-		klo, khi := s.holdLo+k*iv, s.holdHi+k*iv
+		k := math.Round((lo - h.lo) / iv)
+		klo, khi := h.lo+k*iv, h.hi+k*iv
 		if nlo, nhi := math.Max(lo, klo), math.Min(hi, khi); nlo <= nhi {
 			lo, hi = nlo, nhi
 		}
 	}
-	s.holdLo, s.holdHi, s.holdKnown = lo, hi, true
+	h.lo, h.hi, h.known = lo, hi, true
 }
 
-// holdAhead returns the end (physical s) of a hold of the learnt schedule
-// that may overlap [t0, t1], or 0. The schedule's uncertainty grows by
-// 0.1 % of the time since it was learnt (an instrument's clock).
-func (s *sweeper) holdAhead(t0, t1 float64) float64 {
-	iv, hs := s.inst.HoldIntervalS, s.inst.HoldS
-	if !s.holdKnown || iv <= 0 || hs <= 0 {
+// ahead returns the end (physical s) of a hold of holdS, recurring every
+// ivS, that may overlap [t0, t1], or 0. The schedule's uncertainty grows
+// by 0.1 % of the time since it was learnt (an instrument's clock).
+func (h *holdSchedule) ahead(t0, t1, ivS, holdS float64) float64 {
+	iv, hs := ivS, holdS
+	if !h.known || iv <= 0 || hs <= 0 {
 		return 0
 	}
-	k := math.Floor((t0 - s.holdHi) / iv)
+	k := math.Floor((t0 - h.hi) / iv)
 	for j := k; j <= k+2; j++ {
 		slack := 1e-3 * math.Abs(j*iv)
-		start0, start1 := s.holdLo+j*iv-slack, s.holdHi+j*iv+slack
+		start0, start1 := h.lo+j*iv-slack, h.hi+j*iv+slack
 		end := start1 + hs
 		if start0 < t1 && end > t0 {
 			return end

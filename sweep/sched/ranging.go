@@ -15,14 +15,14 @@ import (
 
 // switchRange selects range i remotely, with the output off.
 func (s *sweeper) switchRange(ctx context.Context, i int, why string) error {
-	if s.rangeKnown && s.rangeIdx == i {
+	if s.bench.rangeKnown && s.bench.rangeIdx == i {
 		return nil
 	}
 	sw := s.inst.Converter.(driver.RangeSwitcher)
 	if err := s.setOutput(ctx, false, 0); err != nil {
 		return err
 	}
-	from := s.rangeName(s.rangeIdx)
+	from := s.rangeName(s.bench.rangeIdx)
 	if err := s.r.try(ctx, "converter range", func(ctx context.Context) error { return sw.SwitchRange(ctx, i) }); err != nil {
 		return err
 	}
@@ -37,26 +37,11 @@ func (s *sweeper) switchRange(ctx context.Context, i int, why string) error {
 
 // noteRange records a range change in the model and the status.
 func (s *sweeper) noteRange(i int) {
-	if s.rangeKnown && s.rangeIdx != i {
-		// If the converter's state is continuous in fraction of full
-		// scale rather than in input volts, it now stands at the old
-		// fraction on the new range.
+	if s.bench.rangeKnown && s.bench.rangeIdx != i {
 		rs := s.ranges()
-		k := rs[i].FullScaleVrms / rs[s.rangeIdx].FullScaleVrms
-		t := s.r.phys()
-		s.convMS = s.convAt(t)
-		s.convT = t
-		s.convAltMS = s.convMS * k * k
-		switch s.rangeModel {
-		case rangeByInput:
-			s.convAlt = false
-		case rangeByFraction:
-			s.convMS, s.convTarget, s.convAlt = s.convAltMS, s.convAltMS, false
-		default:
-			s.convAlt = true
-		}
+		s.conv.rangeChanged(s.r.phys(), s.tau(), rs[i].FullScaleVrms/rs[s.bench.rangeIdx].FullScaleVrms)
 	}
-	s.rangeIdx, s.rangeKnown = i, true
+	s.bench.rangeIdx, s.bench.rangeKnown = i, true
 	s.r.mu.Lock()
 	s.r.status.RangeIndex, s.r.status.Range = i, s.rangeName(i)
 	s.r.mu.Unlock()
@@ -72,8 +57,8 @@ func (s *sweeper) askRange(ctx context.Context, i int, why string, freqHz float6
 	r.mu.Lock()
 	r.promptID++
 	p := event.Prompt{ID: r.promptID, RangeIndex: i, Range: s.rangeName(i), Reason: why, FreqHz: freqHz}
-	if s.rangeKnown {
-		p.FromRange = s.rangeName(s.rangeIdx)
+	if s.bench.rangeKnown {
+		p.FromRange = s.rangeName(s.bench.rangeIdx)
 	}
 	r.prompt = &p
 	r.answer = make(chan int, 1)
@@ -150,7 +135,7 @@ func (s *sweeper) inWindow(vrms float64, i int) bool {
 // the current range (aiming at 70 % of the over threshold), clamped.
 func (s *sweeper) levelFor(g float64) float64 {
 	w := s.inst.Converter.Window()
-	fs := s.ranges()[s.rangeIdx].FullScaleVrms
+	fs := s.ranges()[s.bench.rangeIdx].FullScaleVrms
 	target := math.Max(w.UnderFraction*(1+2*marginLow), 0.7*w.OverFraction) * fs
 	lo, hi := s.ampBounds()
 	return math.Max(lo, math.Min(hi, target/g))
@@ -161,19 +146,19 @@ func (s *sweeper) levelFor(g float64) float64 {
 // when vrms is outside the window on the current range and the strategy
 // allows. It reports whether anything changed.
 func (s *sweeper) guard(ctx context.Context, vrms, gainEst, freqHz float64, why string) (bool, error) {
-	if s.inst.Converter == nil || !s.rangeKnown || s.inWindow(vrms, s.rangeIdx) {
+	if s.inst.Converter == nil || !s.bench.rangeKnown || s.inWindow(vrms, s.bench.rangeIdx) {
 		return false, nil
 	}
 	switch s.plan.Ranging.Strategy {
 	case plan.RangeRemote:
 		i := s.pickRange(vrms)
-		if i == s.rangeIdx {
+		if i == s.bench.rangeIdx {
 			return false, nil
 		}
 		return true, s.switchRange(ctx, i, why)
 	case plan.RangeOperator:
 		i := s.pickRange(vrms)
-		if i == s.rangeIdx {
+		if i == s.bench.rangeIdx {
 			return false, nil
 		}
 		return true, s.askRange(ctx, i, why, freqHz)
@@ -182,15 +167,15 @@ func (s *sweeper) guard(ctx context.Context, vrms, gainEst, freqHz float64, why 
 			return false, nil
 		}
 		a := s.levelFor(gainEst)
-		if math.Abs(a-s.ampVrms) <= 1e-9*a {
+		if math.Abs(a-s.bench.ampVrms) <= 1e-9*a {
 			return false, nil
 		}
-		old := s.ampVrms
+		old := s.bench.ampVrms
 		if err := s.setAmplitude(ctx, a); err != nil {
 			return false, err
 		}
-		if s.outputOn {
-			s.convStep(s.r.phys(), gainEst*gainEst*a*a)
+		if s.bench.outputOn {
+			s.conv.step(s.r.phys(), s.tau(), gainEst*gainEst*a*a)
 		}
 		s.r.logEvent(fmt.Sprintf("level %.4g → %.4g Vrms (%s)", old, a, why))
 		return true, nil

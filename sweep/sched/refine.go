@@ -13,8 +13,8 @@ import (
 
 func (s *sweeper) refinedCount() int {
 	n := 0
-	for _, p := range s.pts {
-		if p.Index >= s.nPlan {
+	for _, p := range s.prog.pts {
+		if p.Index >= s.prog.nPlan {
 			n++
 		}
 	}
@@ -26,11 +26,11 @@ func (s *sweeper) refinedCount() int {
 // one plan step down to the resolution, within the plan's maximum.
 func (s *sweeper) refineExpected() int {
 	rf := s.plan.Refine
-	if !rf.Enabled || len(s.freqs) < 2 || !(rf.ResolutionRel > 0) {
+	if !rf.Enabled || len(s.prog.freqs) < 2 || !(rf.ResolutionRel > 0) {
 		return 0
 	}
-	mid := len(s.freqs) / 2
-	step := math.Abs(math.Log(s.freqs[mid].Hz / s.freqs[mid-1].Hz))
+	mid := len(s.prog.freqs) / 2
+	step := math.Abs(math.Log(s.prog.freqs[mid].Hz / s.prog.freqs[mid-1].Hz))
 	if !(step > 0) {
 		return 0
 	}
@@ -45,7 +45,7 @@ func (s *sweeper) refineExpected() int {
 // sortedPoints returns the usable points by frequency.
 func (s *sweeper) sortedPoints() []point.Point {
 	var v []point.Point
-	for _, p := range s.pts {
+	for _, p := range s.prog.pts {
 		if !p.Excluded() && p.VinVrms > 0 && p.VoutVrms > 0 {
 			v = append(v, p)
 		}
@@ -94,7 +94,7 @@ func (s *sweeper) refine(ctx context.Context) error {
 	if refHz <= 0 {
 		refHz = plan.DefaultReferenceHz
 	}
-	for s.refinedCount() < budget && len(s.pts) < plan.MaxPoints {
+	for s.refinedCount() < budget && len(s.prog.pts) < plan.MaxPoints {
 		pts := s.sortedPoints()
 		ref, ok := referenceDB(pts, refHz)
 		if !ok {
@@ -113,7 +113,7 @@ func (s *sweeper) refine(ctx context.Context) error {
 			ga := a.VoutVrms / a.VinVrms
 			gb := b.VoutVrms / b.VinVrms
 			pg := math.Sqrt(ga * gb)
-			if err := s.measure(ctx, s.nPlan+s.refinedCount(), f, true, pg); err != nil {
+			if err := s.measure(ctx, s.prog.nPlan+s.refinedCount(), f, true, pg); err != nil {
 				return err
 			}
 			found = true

@@ -2,6 +2,7 @@ package sched
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"sync"
@@ -119,14 +120,12 @@ type Opts struct {
 	// 100 ms wall) doubling between tries.
 	Retries      int
 	RetryBackoff time.Duration
-	// NoAnalysis skips the analysis and exports at the end.
+	// Finish, when set, ends a done run: it receives the run's points and
+	// returns the result JSON for the result event (or nil). Package
+	// sweep/sched/finish provides the analysis and exports.
+	Finish FinishFunc
+	// NoAnalysis skips Finish.
 	NoAnalysis bool
-	// Through is the normalization run's points (see LoadThrough): the
-	// analysis divides the response by it, interpolated in log f.
-	Through []point.Point
-	// Finish, when set, replaces the analysis and exports at the end: it
-	// receives the run's points and returns the result JSON (or nil).
-	Finish func(ctx context.Context, pts []point.Point) (json []byte, err error)
 }
 
 // Status is a snapshot of a run.
@@ -134,8 +133,8 @@ type Status struct {
 	State      event.State   `json:"state"`
 	Done       int           `json:"done"`
 	Total      int           `json:"total"`
-	ETASec     float64       `json:"eta_s"`
-	ElapsedSec float64       `json:"elapsed_s"`
+	ETA        time.Duration `json:"-"` // wall time; "eta_s" in JSON
+	Elapsed    time.Duration `json:"-"` // wall time; "elapsed_s" in JSON
 	FreqHz     float64       `json:"freq_hz"`
 	Prompt     *event.Prompt `json:"prompt,omitempty"`
 	RangeIndex int           `json:"range_index"`
@@ -144,17 +143,28 @@ type Status struct {
 	Err        string        `json:"error,omitempty"`
 }
 
+// FinishFunc is a run's finish step, called once its points are stored:
+// the analysis and exports, typically (see package sweep/sched/finish).
+// Its error is logged as a run event; the run is done either way.
+type FinishFunc func(ctx context.Context, pts []point.Point) (resultJSON []byte, err error)
+
+// MarshalJSON writes s with ETA and Elapsed as seconds, "eta_s" and
+// "elapsed_s".
+func (s Status) MarshalJSON() ([]byte, error) {
+	type plain Status
+	return json.Marshal(struct {
+		plain
+		ETAWallS float64 `json:"eta_s"`
+		WallS    float64 `json:"elapsed_s"`
+	}{plain(s), s.ETA.Seconds(), s.Elapsed.Seconds()})
+}
+
 // recorder is what a run needs of its store: store.Run implements it. A
 // state event given to AppendEvent also records the run's state.
 type recorder interface {
 	AppendPoint(p point.Point) error
 	AppendEvent(e event.Event) error
 	Points() ([]point.Point, error)
-}
-
-// dirRecorder is a recorder with a directory for the exports.
-type dirRecorder interface {
-	Dir() string
 }
 
 // Run is one running sweep.
@@ -187,6 +197,8 @@ type Run struct {
 	promptID    int
 	t0          time.Time
 	j           *journal
+	// halting is the result of a generator Halt in flight (see haltOnce).
+	halting chan error
 }
 
 // Subscribe returns a channel of the run's events from now on and a
@@ -285,7 +297,7 @@ func (r *Run) Status() Status {
 		s.Prompt = &p
 	}
 	if !r.t0.IsZero() && !Terminal(s.State) {
-		s.ElapsedSec = r.clock.Now().Sub(r.t0).Seconds()
+		s.Elapsed = r.clock.Now().Sub(r.t0)
 	}
 	return s
 }

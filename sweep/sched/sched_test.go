@@ -875,7 +875,7 @@ func TestETAIncludesRefinement(t *testing.T) {
 		t.Fatal("no progress event at the end of the planned points, or no done state")
 	}
 	left := end.Sub(atPlanEnd.Time).Seconds()
-	eta := atPlanEnd.Progress.ETASec
+	eta := atPlanEnd.Progress.ETA.Seconds()
 	if left < 1 {
 		t.Fatalf("test premise: only %.3g s of refinement", left)
 	}

@@ -70,7 +70,6 @@ func TestSimSettleSeveralTimeConstants(t *testing.T) {
 			taus := make([]float64, len(cfg.Converter.Spec.Ranges))
 			for i := range cfg.Converter.Spec.Ranges {
 				cfg.Converter.Spec.Ranges[i].TimeConstantS = tau
-				cfg.Sim.Converter.Ranges[i].TimeConstantS = tau
 				taus[i] = tau
 			}
 			p := shortPlan(plan.RangeRemote)

@@ -15,6 +15,7 @@ import (
 	"rolloff/sweep/plan"
 	"rolloff/sweep/point"
 	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
 	"rolloff/sweep/sched/onbench"
 	"rolloff/sweep/settle"
 	"rolloff/sweep/store"
@@ -22,14 +23,13 @@ import (
 
 // simConfig returns the demo simulated bench's configuration with the
 // given time scale (model seconds per wall second).
-func simConfig(t testing.TB, scale float64) *profile.Bench {
+func simConfig(t testing.TB, scale float64) *profile.BenchFile {
 	t.Helper()
 	cfg, err := configs.LoadBench(configs.SimBench)
 	if err != nil {
 		t.Fatal(err)
 	}
 	if scale > 0 {
-		cfg.Sim.TimeScale = scale
 		cfg.TimeScale = scale
 	}
 	return cfg
@@ -60,7 +60,7 @@ type simRun struct {
 }
 
 // newRun opens a bench and a run in a fresh store.
-func newRun(t testing.TB, cfg *profile.Bench, p *plan.Plan, dir string) (*bench.Bench, *store.Run) {
+func newRun(t testing.TB, cfg *profile.BenchFile, p *plan.Plan, dir string) (*bench.Bench, *store.Run) {
 	t.Helper()
 	b, err := bench.Open(context.Background(), cfg, zerolog.Nop())
 	if err != nil {
@@ -81,7 +81,7 @@ func newRun(t testing.TB, cfg *profile.Bench, p *plan.Plan, dir string) (*bench.
 }
 
 // sweepOn runs p on a fresh simulated bench of cfg and waits for it.
-func sweepOn(t testing.TB, ctx context.Context, cfg *profile.Bench, p *plan.Plan, opts sched.Opts, hook func(*sched.Run, *bench.Bench)) simRun {
+func sweepOn(t testing.TB, ctx context.Context, cfg *profile.BenchFile, p *plan.Plan, opts sched.Opts, hook func(*sched.Run, *bench.Bench)) simRun {
 	t.Helper()
 	b, run := newRun(t, cfg, p, t.TempDir())
 	defer b.Close()
@@ -99,6 +99,9 @@ func sweepRun(t testing.TB, ctx context.Context, b *bench.Bench, run *store.Run,
 		opts.Operator = func(ctx context.Context, pr event.Prompt) (int, error) {
 			return pr.RangeIndex, b.Sim.SelectRange(pr.RangeIndex)
 		}
+	}
+	if opts.Finish == nil && !opts.NoAnalysis {
+		opts.Finish = finish.Analyze(p, run.Dir(), nil)
 	}
 	t0 := time.Now()
 	r := sched.Start(ctx, inst, p, run, opts)
@@ -120,7 +123,7 @@ func sweepRun(t testing.TB, ctx context.Context, b *bench.Bench, run *store.Run,
 // model picks) and the fixed worst-case delay sweep (the dwell of the
 // worst step of the sweep on the slowest range at every point, plus the
 // same readings).
-func figures(pts []point.Point, p *plan.Plan, cfg *profile.Bench) (boundS, fixedS float64) {
+func figures(pts []point.Point, p *plan.Plan, cfg *profile.BenchFile) (boundS, fixedS float64) {
 	ranges := cfg.Converter.Spec.DriverRanges()
 	m := onbench.Meter(cfg)
 	tol := p.Settle.Tolerance

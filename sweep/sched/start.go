@@ -14,8 +14,8 @@ import (
 // Abort (aborted), on a failure past the retry budget (failed), or when
 // ctx is cancelled (interrupted, resumable): in every case with the
 // generator output off. With opts.Resume it continues after the points
-// already stored in run. The analysis and exports are written into the
-// run directory at the end.
+// already stored in run. A done run ends with opts.Finish (the analysis
+// and exports: see package sweep/sched/finish).
 func Start(ctx context.Context, inst Instruments, p *plan.Plan, run *store.Run, opts Opts) *Run {
 	return start(ctx, inst, p, run, run.ID(), opts)
 }

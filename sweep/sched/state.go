@@ -34,7 +34,7 @@ var transitions = map[event.State][]event.State{
 
 // Terminal reports whether s ends a run for the scheduler: done, aborted,
 // failed or interrupted.
-func Terminal(s event.State) bool { return s.Final() || s == event.Interrupted }
+func Terminal(s event.State) bool { return s.Ended() }
 
 // machine is the run's state, changed only through to.
 type machine struct {

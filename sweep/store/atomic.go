@@ -11,6 +11,22 @@ import (
 // dot are never run files, so List and OpenFile ignore them.
 const tempPrefix = ".tmp-"
 
+// WriteFileAtomic replaces the file at path with data, as the store
+// replaces its own files: a temporary file in the same directory, named
+// with the store's temporary prefix, fsynced, renamed over path, then the
+// directory fsynced. A reader sees the old content or the new, never a
+// mix. A crash leaves at most a temporary file; in a run directory the
+// next recovery removes it. Run.WriteFileAtomic is the checked form for a
+// run's result files.
+func WriteFileAtomic(path string, data []byte) error {
+	return writeFileAtomic(filepath.Dir(path), filepath.Base(path), data)
+}
+
+// testHookTempWritten, when set, is called with the temporary file's path
+// once its data is synced and before it is renamed: where a crash leaves
+// a temporary file behind.
+var testHookTempWritten func(tmp string)
+
 // writeFileAtomic replaces dir/name with data: it writes a temporary file
 // in dir, fsyncs it, renames it over name and fsyncs dir. A reader sees the
 // old content or the new, never a mix; a crash leaves at most a temporary
@@ -38,6 +54,9 @@ func writeFileAtomic(dir, name string, data []byte) (err error) {
 	}
 	if err = f.Close(); err != nil {
 		return fmt.Errorf("store: write %s: %w", filepath.Join(dir, name), err)
+	}
+	if testHookTempWritten != nil {
+		testHookTempWritten(tmp)
 	}
 	if err = os.Rename(tmp, filepath.Join(dir, name)); err != nil {
 		return fmt.Errorf("store: replace %s: %w", filepath.Join(dir, name), err)

@@ -12,11 +12,25 @@
 //	                       directory, fsync, rename, fsync of the directory)
 //	points.jsonl           one point.Point per line, appended and fsynced before
 //	                       AppendPoint returns
-//	events.jsonl           one event.Event per line; state, prompt and result
-//	                       events are fsynced
+//	events.jsonl           one event.Event per line; state, prompt, result and
+//	                       point events are fsynced
 //	lock                   the owner's lock (see below); holds its pid
-//	result.json, response.csv, response.png, ...
-//	                       files written on completion with WriteFileAtomic
+//	response.csv, result.json, response.png, response.svg, response.pdf
+//	                       the result files (ResultFiles), rendered by the
+//	                       export package on completion and written with
+//	                       Run.WriteFileAtomic; other result files (.json,
+//	                       .csv, .png, .svg, .pdf, .txt) may be added the
+//	                       same way
+//
+// The constants File* name these files; the other packages (export, the
+// web API, the CLI) use them rather than spelling the names.
+//
+// Every whole-file write (meta.json, the plan and bench files when a run
+// is created, result files, and WriteFileAtomic for a file outside a run)
+// goes through one writer: a temporary file named ".tmp-<name>-…" in the
+// same directory, fsynced, renamed over the name, then the directory
+// fsynced. A crash leaves at most such a temporary file, which the
+// recovery of the run removes.
 //
 // Ownership: the process running a run holds an exclusive flock(2) on its
 // lock file for as long as it has the run open for writing (Create returns
@@ -27,13 +41,17 @@
 // OpenRun marks it interrupted (in meta.json and events.jsonl) and List
 // reports it so.
 //
-// Recovery: opening a run without a live owner scans points.jsonl and
-// events.jsonl. A torn last line (no newline, or invalid JSON at the very
-// end) was never acknowledged and is cut, and the number of bytes cut is
-// logged and reported in Recovery. An invalid line before the end is
-// measured data gone bad: it is an error naming the file and line, never
-// dropped silently.
+// Recovery: opening a run without a live owner (OpenRun, or Lock to
+// resume) scans points.jsonl and events.jsonl. A torn last line (bytes
+// after the last newline, or an invalid last line with only blank lines
+// after it) was never acknowledged and is cut, and the number of bytes cut
+// is logged and reported in Recovery, as is the number of temporary files
+// removed. An invalid line before the end, or a plan index stored twice,
+// is measured data gone bad: it is a *CorruptError naming the file and
+// line, never dropped silently. The same rule, without the cutting, is
+// how every reader reads points back: ReadPoints, which Run.Points (for a
+// handle that does not own the run) and the export package's LoadRun use.
 //
 // One goroutine may write a run while others read it (Points, Events,
-// Meta, OpenFile).
+// Meta, OpenFile); a reader leaves out a line still being written.
 package store

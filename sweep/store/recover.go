@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"strconv"
 
 	"rolloff/sweep/event"
@@ -106,6 +107,25 @@ func (s *pointScan) check(line []byte) error {
 	s.index[p.Index] = len(s.pts)
 	s.pts = append(s.pts, p)
 	return nil
+}
+
+// ReadPoints reads points stored one JSON object a line, as in a run's
+// points.jsonl, by the store's own rule: blank lines are skipped; a torn
+// end (bytes after the last newline, or an invalid last line) was never
+// acknowledged and is left out; an invalid line before the end, or a plan
+// index stored twice, is a *CorruptError naming name and the line. It is
+// the one reader of stored points: Run.Points of a handle that does not
+// own the run reads through it too. It does not modify anything.
+func ReadPoints(r io.Reader, name string) ([]point.Point, error) {
+	data, err := io.ReadAll(r)
+	if err != nil {
+		return nil, fmt.Errorf("store: %s: %w", name, err)
+	}
+	pts, _, err := scanPoints(name, data)
+	if err != nil {
+		return nil, err
+	}
+	return pts, nil
 }
 
 // scanPoints parses points.jsonl data.

@@ -171,7 +171,7 @@ func (r *Run) recover(m *Meta, write bool) (Recovery, error) {
 		rec.TempsRemoved = removeTemps(r.dir)
 	}
 	st := m.State
-	if !st.Final() && st != event.Interrupted {
+	if !st.Ended() {
 		rec.Interrupted, rec.PrevState = true, st
 		msg := "found " + string(st) + " with no live owner"
 		now := time.Now().UTC()
@@ -270,8 +270,15 @@ func (r *Run) scanEventsFile() ([]event.Event, scanResult, int64, error) {
 
 // readPoints reads the stored points from disk, ignoring a torn end.
 func (r *Run) readPoints() ([]point.Point, error) {
-	pts, _, _, err := r.scanPointsFile()
-	return pts, err
+	f, err := os.Open(r.path(FilePoints))
+	if errors.Is(err, fs.ErrNotExist) {
+		return nil, nil
+	}
+	if err != nil {
+		return nil, fmt.Errorf("store: run %s: %w", r.id, err)
+	}
+	defer f.Close()
+	return ReadPoints(f, r.path(FilePoints))
 }
 
 // Lock makes this handle the run's owner, so that it may write: it takes

@@ -46,7 +46,8 @@ var (
 	ErrFailed = errors.New("store: run files in an unknown state after a failed write")
 )
 
-// File names in a run directory.
+// File names in a run directory: the store's own files, then the result
+// files a finished run's exports write through Run.WriteFileAtomic.
 const (
 	FilePlanTOML = "plan.toml"
 	FilePlanJSON = "plan.json"
@@ -55,8 +56,19 @@ const (
 	FilePoints   = "points.jsonl"
 	FileEvents   = "events.jsonl"
 	FileLock     = "lock"
-	FileResult   = "result.json"
+
+	FileResult      = "result.json"
+	FileResponseCSV = "response.csv"
+	FileResponsePNG = "response.png"
+	FileResponseSVG = "response.svg"
+	FileResponsePDF = "response.pdf"
 )
+
+// ResultFiles returns the names of a finished run's result files, in the
+// order the exports write them.
+func ResultFiles() []string {
+	return []string{FileResponseCSV, FileResult, FileResponsePNG, FileResponseSVG, FileResponsePDF}
+}
 
 // CLIDir is the CLI's store directory, relative to the working directory.
 const CLIDir = "runs"
@@ -501,7 +513,7 @@ func (s *Store) summary(id string) Summary {
 	}
 	sum.Name, sum.Created, sum.Updated, sum.State, sum.Message = m.Name, m.Created, m.Updated, m.State, m.Message
 	sum.Plan, sum.PlanPoints = m.Plan, m.Plan.Points
-	if !m.State.Final() && m.State != event.Interrupted && !r.liveOwner() {
+	if !m.State.Ended() && !r.liveOwner() {
 		sum.State = event.Interrupted
 	}
 	if data, err := os.ReadFile(filepath.Join(r.dir, FilePoints)); err == nil {

@@ -1,17 +1,16 @@
 package replay
 
 import (
-	"bufio"
 	"context"
 	"errors"
 	"math/rand/v2"
-	"net"
 	"strings"
 	"testing"
 	"time"
 
 	"rolloff/driver"
 	"rolloff/driver/transport"
+	"rolloff/internal/scpitest"
 )
 
 func TestParseAndFormat(t *testing.T) {
@@ -196,33 +195,12 @@ func TestPlaybackOrderAndUnused(t *testing.T) {
 // TestRecordThenPlayBack records a conversation with a loopback instrument
 // through the real TCP transport, then replays it.
 func TestRecordThenPlayBack(t *testing.T) {
-	ln, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer ln.Close()
-	go func() {
-		c, err := ln.Accept()
-		if err != nil {
-			return
-		}
-		defer c.Close()
-		r := bufio.NewReader(c)
-		for {
-			line, err := r.ReadString('\n')
-			if err != nil {
-				return
-			}
-			switch line {
-			case "*IDN?\n":
-				c.Write([]byte("rolloff,SIM-GEN,0001,1.0\n"))
-			case "FREQ?\n":
-				c.Write([]byte("+1.000000E+03\n"))
-			}
-		}
-	}()
+	addr := scpitest.Listen(t, &scpitest.Instrument{Replies: map[string]string{
+		"*IDN?": "rolloff,SIM-GEN,0001,1.0",
+		"FREQ?": "+1.000000E+03",
+	}})
 	ctx := t.Context()
-	conn, err := transport.Open(ctx, "tcp://"+ln.Addr().String(), transport.Opts{Timeout: 200 * time.Millisecond})
+	conn, err := transport.Open(ctx, addr, transport.Opts{Timeout: 200 * time.Millisecond})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -42,7 +42,7 @@ func Instruments(b *bench.Bench, log zerolog.Logger) sched.Instruments {
 // configured aperture (default 1 NPLC) is the shortest used, since whole
 // power-line cycles reject mains hum on the DC output (common practice);
 // the profile's settable apertures bound the longest.
-func Meter(cfg *profile.Bench) settle.Meter {
+func Meter(cfg *profile.BenchFile) settle.Meter {
 	line := 50.0
 	var nplcs []float64
 	var minS, maxS float64
@@ -78,7 +78,7 @@ func Meter(cfg *profile.Bench) settle.Meter {
 // Timing returns the settle model's timing of plan p on the bench
 // described by cfg, for a DUT whose output changes by slopeDBPerDecade
 // between points (0: flat).
-func Timing(cfg *profile.Bench, p *plan.Plan, slopeDBPerDecade float64) *settle.Timing {
+func Timing(cfg *profile.BenchFile, p *plan.Plan, slopeDBPerDecade float64) *settle.Timing {
 	t := &settle.Timing{
 		Tol:              p.Settle.Tolerance,
 		Readings:         p.Settle.Readings,
