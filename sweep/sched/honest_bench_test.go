@@ -72,7 +72,7 @@ func BenchmarkDemoSweepHonest(b *testing.B) {
 			trueErr = math.Max(trueErr, math.Abs(pt.GainDB-res.dut.GainDBAt(pt.FreqHz)))
 			target = math.Max(target, math.Abs(pt.GainDB-res.settledDB(pt.FreqHz, pt.RangeIndex, p.Level.Vrms)))
 		}
-		sweep := func(cfg *profile.Bench, k float64) (fixedResult, error) {
+		sweep := func(cfg *profile.BenchFile, k float64) (fixedResult, error) {
 			return fixedDelaySweep(context.Background(), cfg, freqs, p.Level.Vrms, func(tauS float64) float64 { return k * tauS }, &res)
 		}
 		logRun := func(scale, k float64, fr fixedResult) {
@@ -188,13 +188,12 @@ func honestPlan(tb testing.TB) *plan.Plan {
 }
 
 // honestConfig returns the demo simulated bench at a time scale.
-func honestConfig(tb testing.TB, scale float64) *profile.Bench {
+func honestConfig(tb testing.TB, scale float64) *profile.BenchFile {
 	tb.Helper()
 	cfg, err := configs.LoadBench(configs.SimBench)
 	if err != nil {
 		tb.Fatal(err)
 	}
-	cfg.Sim.TimeScale = scale
 	cfg.TimeScale = scale
 	return cfg
 }
@@ -214,7 +213,7 @@ type ourSweep struct {
 
 // honestOurSweep runs plan p with the scheduler on a fresh simulated
 // bench of cfg and times it on the simulator's clock.
-func honestOurSweep(tb testing.TB, cfg *profile.Bench, p *plan.Plan) ourSweep {
+func honestOurSweep(tb testing.TB, cfg *profile.BenchFile, p *plan.Plan) ourSweep {
 	tb.Helper()
 	ctx := context.Background()
 	bn, err := bench.Open(ctx, cfg, zerolog.Nop())
@@ -296,7 +295,7 @@ func converterInput(sc sim.Config, dut *model.DUT, freqHz, vinVrms float64, rng 
 
 // minApertureS is the shortest aperture the bench's DC voltmeter
 // accepts, seconds.
-func minApertureS(cfg *profile.Bench) float64 {
+func minApertureS(cfg *profile.BenchFile) float64 {
 	d := cfg.Voltmeter.DMM
 	best := math.Inf(1)
 	if d.DC.MaxApertureS > 0 {
@@ -409,7 +408,7 @@ type fixedResult struct {
 //
 // These choices favour the fixed-delay sweep, so that the ratio to it is
 // not flattered.
-func fixedDelaySweep(ctx context.Context, cfg *profile.Bench, freqs []float64, vrms float64, delayS func(tauS float64) float64, ref *ourSweep) (fixedResult, error) {
+func fixedDelaySweep(ctx context.Context, cfg *profile.BenchFile, freqs []float64, vrms float64, delayS func(tauS float64) float64, ref *ourSweep) (fixedResult, error) {
 	var res fixedResult
 	bn, err := bench.Open(ctx, cfg, zerolog.Nop())
 	if err != nil {
