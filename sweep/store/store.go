@@ -177,6 +177,9 @@ type PlanSummary struct {
 	ReferenceHz    float64 `json:"reference_hz"`
 	Refine         bool    `json:"refine,omitempty"`
 	ThroughRun     string  `json:"through_run,omitempty"`
+	// Unit and Batch are the plan's serial number and batch.
+	Unit  string `json:"unit,omitempty"`
+	Batch string `json:"batch,omitempty"`
 }
 
 // Summarize sums up a plan for meta.json.
@@ -193,6 +196,7 @@ func Summarize(p *plan.Plan) (PlanSummary, error) {
 		Spacing: p.Frequencies.Spacing, StartHz: lo, StopHz: hi, Points: len(fs),
 		Descending: p.Frequencies.Descending, Vrms: p.Level.Vrms, Strategy: p.Ranging.Strategy,
 		ReferenceHz: p.ReferenceHz, Refine: p.Refine.Enabled, ThroughRun: p.Normalize.ThroughRun,
+		Unit: p.Unit, Batch: p.Batch,
 	}
 	if s.Spacing == plan.SpacingBands {
 		s.BandsPerOctave = p.Frequencies.BandsPerOctave

@@ -1,0 +1,40 @@
+package plan_test
+
+import (
+	"strings"
+	"testing"
+
+	"rolloff/sweep/plan"
+)
+
+func TestUnitFields(t *testing.T) {
+	doc := base + "\n"
+	// Top-level keys must precede the tables: put them first.
+	head := "unit = \"LD-0042\"\nbatch = \"proto-A\"\noperator = \"bench 3\"\nnotes = \"first line\\nsecond line\"\n"
+	p, err := plan.DecodeTOML("u.toml", []byte(head+doc))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := p.Validate(benchLim); err != nil {
+		t.Fatal(err)
+	}
+	if p.Unit != "LD-0042" || p.Batch != "proto-A" || p.Operator != "bench 3" || p.Notes != "first line\nsecond line" {
+		t.Errorf("decoded %q %q %q %q", p.Unit, p.Batch, p.Operator, p.Notes)
+	}
+	for _, c := range []struct{ head, field, why string }{
+		{"unit = \"" + strings.Repeat("9", plan.MaxUnitBytes+1) + "\"\n", "unit", "at most 64 bytes"},
+		{"batch = \"a\\u0007b\"\n", "batch", "control characters"},
+		{"notes = \"" + strings.Repeat("n", plan.MaxNotesBytes+1) + "\"\n", "notes", "at most 2000 bytes"},
+		{"notes = \"a\\u001bb\"\n", "notes", "control characters"},
+	} {
+		p, err := plan.DecodeTOML("u.toml", []byte(c.head+doc))
+		if err != nil {
+			t.Fatal(err)
+		}
+		err = p.Validate(benchLim)
+		fes := plan.FieldErrors(err)
+		if len(fes) != 1 || fes[0].Field != c.field || fes[0].Line != 1 || !strings.Contains(fes[0].Allowed, c.why) {
+			t.Errorf("%s: got %v, want one error on %s at line 1 saying %q", c.field, err, c.field, c.why)
+		}
+	}
+}
