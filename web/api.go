@@ -32,6 +32,7 @@ var Files = map[string]string{
 	"response.png": "image/png",
 	"response.svg": "image/svg+xml",
 	"response.pdf": "application/pdf",
+	"report.pdf":   "application/pdf",
 }
 
 // MaxOverlayRuns is the most runs one overlay may combine.
@@ -488,7 +489,7 @@ func (s *Server) points(w http.ResponseWriter, r *http.Request, id string) {
 func (s *Server) file(w http.ResponseWriter, r *http.Request, id, name string) {
 	ct, ok := Files[name]
 	if !ok {
-		guard.WriteError(w, http.StatusNotFound, "name", fmt.Sprintf("file %q: want one of response.csv, result.json, response.png, response.svg, response.pdf", clip(name)))
+		guard.WriteError(w, http.StatusNotFound, "name", fmt.Sprintf("file %q: want one of response.csv, result.json, response.png, response.svg, response.pdf, report.pdf", clip(name)))
 		return
 	}
 	if _, err := s.queue.Get(id); err != nil {

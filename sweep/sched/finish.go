@@ -48,6 +48,7 @@ func (s *sweeper) finish(ctx context.Context) error {
 // writes the exports beside the run's files.
 func (s *sweeper) analyze(pts []point.Point) ([]byte, error) {
 	res, err := analysis.Analyze(pts, analysis.Options{LevelDB: s.plan.Refine.LevelDB, RefHz: s.plan.ReferenceHz, Through: s.r.opts.Through})
+	defer s.writeReport(pts, res, err)
 	if err != nil {
 		// The points are still exported, without figures.
 		if xerr := s.export(pts, nil); xerr != nil {
