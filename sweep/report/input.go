@@ -173,16 +173,9 @@ func Load(dir string, opts Options) (*Input, error) {
 	ao := analysis.Options{Mask: opts.Mask}
 	if p := in.Plan; p != nil {
 		ao.LevelDB, ao.RefHz = p.Refine.LevelDB, p.ReferenceHz
-		if id := p.Normalize.ThroughRun; id != "" {
-			if store.ValidID(id) != nil {
-				return nil, fmt.Errorf("report: %s: through run %q: not a run id", dir, id)
-			}
-			thr, err := export.LoadRun(filepath.Join(filepath.Dir(filepath.Clean(dir)), id), export.ReadOptions{})
-			if err != nil {
-				return nil, fmt.Errorf("report: %s: through run %q: %w", dir, id, err)
-			}
-			ao.Through = thr
-		}
+	}
+	if ao.Through, err = throughOf(dir, in.Plan); err != nil {
+		return nil, err
 	}
 	res, err := analysis.Analyze(pts, ao)
 	if err != nil {
@@ -190,6 +183,66 @@ func Load(dir string, opts Options) (*Input, error) {
 	} else {
 		in.Result = res
 	}
+	return in, nil
+}
+
+// throughOf reads the points of the plan's through run, which sits beside
+// the run in its store; nil when the plan names none.
+func throughOf(dir string, p *plan.Plan) ([]point.Point, error) {
+	if p == nil || p.Normalize.ThroughRun == "" {
+		return nil, nil
+	}
+	id := p.Normalize.ThroughRun
+	if store.ValidID(id) != nil {
+		return nil, fmt.Errorf("report: %s: through run %q: not a run id", dir, id)
+	}
+	thr, err := export.LoadRun(filepath.Join(filepath.Dir(filepath.Clean(dir)), id), export.ReadOptions{})
+	if err != nil {
+		return nil, fmt.Errorf("report: %s: through run %q: %w", dir, id, err)
+	}
+	return thr, nil
+}
+
+// LoadRecorded is Load using the figures the run recorded in its
+// result.json, when it has one for all its points, instead of analysing
+// again: the samples are rebuilt from the points (normalised by the
+// through run as the analysis does) and the mask is checked on them as
+// Analyze checks it. The Result's curve is not available (GainAt reports
+// false); a run without a usable result.json is analysed by Load.
+func LoadRecorded(dir string, opts Options) (*Input, error) {
+	data, err := os.ReadFile(filepath.Join(dir, store.FileResult))
+	if err != nil {
+		return Load(dir, opts)
+	}
+	var res analysis.Result
+	if json.Unmarshal(data, &res) != nil {
+		return Load(dir, opts)
+	}
+	in, err := FromRun(dir)
+	if err != nil {
+		return nil, err
+	}
+	pts, err := export.LoadRun(dir, export.ReadOptions{})
+	if err != nil {
+		return nil, fmt.Errorf("report: %w", err)
+	}
+	if res.Points != len(pts) {
+		return Load(dir, opts)
+	}
+	thr, err := throughOf(dir, in.Plan)
+	if err != nil {
+		return nil, err
+	}
+	samples, err := analysis.BuildSamples(pts, thr)
+	if err != nil {
+		return Load(dir, opts)
+	}
+	res.Samples = samples
+	res.Mask = nil
+	if opts.Mask != nil {
+		res.Mask = opts.Mask.Check(samples, res.ReferenceGainDB)
+	}
+	in.Points, in.Result = pts, &res
 	return in, nil
 }
 

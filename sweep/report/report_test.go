@@ -182,7 +182,7 @@ func TestReportFailingMask(t *testing.T) {
 func TestReportNoCorners(t *testing.T) {
 	needPoppler(t)
 	// A flat amplifier swept well inside its band: no crossing at all.
-	f := fixture{name: "flat buffer", unit: "FB-1", startHz: 100, stopHz: 10e3, n: 30, gainDB: 6}
+	f := fixture{Name: "flat buffer", Unit: "FB-1", StartHz: 100, StopHz: 10e3, N: 30, GainDB: 6}
 	dir := makeRun(t, f)
 	path := render(t, dir, nil, Letter)
 	text := pdfText(t, path)
@@ -208,12 +208,12 @@ func TestReportThousandPoints(t *testing.T) {
 func TestReportLongText(t *testing.T) {
 	needPoppler(t)
 	f := demoFixture(50)
-	f.name = strings.Repeat("Balanced line driver with transformer output stage ", 4)[:200]
-	f.unit = strings.Repeat("SN", 32)
-	f.batch = strings.Repeat("B", 64)
-	f.operator = strings.Repeat("An operator with a long name ", 6)
-	f.benchName = strings.Repeat("A bench with a very long name ", 8)
-	f.notes = strings.Repeat("A long note about the fixture and the load. ", 20) + strings.Repeat("x", 300) + "\nlast line"
+	f.Name = strings.Repeat("Balanced line driver with transformer output stage ", 4)[:200]
+	f.Unit = strings.Repeat("SN", 32)
+	f.Batch = strings.Repeat("B", 64)
+	f.Operator = strings.Repeat("An operator with a long name ", 6)
+	f.BenchName = strings.Repeat("A bench with a very long name ", 8)
+	f.Notes = strings.Repeat("A long note about the fixture and the load. ", 20) + strings.Repeat("x", 300) + "\nlast line"
 	dir := makeRun(t, f)
 	path := render(t, dir, relMask("long", 30, 20e3, -0.6), A4)
 	wantText(t, pdfText(t, path), "Balanced line driver", "Safety:")
@@ -308,4 +308,39 @@ func greyDiff(a, b image.Image, x, y int) int {
 		v = -v
 	}
 	return v
+}
+
+// TestLoadRecorded checks that the recorded figures and a mask checked on
+// the rebuilt samples agree with analysing the run again.
+func TestLoadRecorded(t *testing.T) {
+	dir := makeRun(t, demoFixture(60))
+	mask := relMask("tight", 20, 60e3, -0.2)
+	a, err := Load(dir, Options{Mask: mask})
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := LoadRecorded(dir, Options{Mask: mask})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ra, rb := a.Result, b.Result
+	if ra == nil || rb == nil || ra.LowHz == nil || rb.LowHz == nil || *ra.LowHz != *rb.LowHz || *ra.HighUHz != *rb.HighUHz ||
+		ra.PeakingDB != rb.PeakingDB || rb.Mask == nil || ra.Mask.Pass != rb.Mask.Pass || ra.Mask.Failed != rb.Mask.Failed ||
+		*ra.Mask.WorstMarginDB != *rb.Mask.WorstMarginDB || len(ra.Samples) != len(rb.Samples) {
+		t.Fatalf("recorded %+v\nanalysed %+v", rb, ra)
+	}
+	if ra.Mask.Pass {
+		t.Error("the tight mask passed: the comparison shows nothing")
+	}
+	// Without result.json the run is analysed.
+	if err := os.Remove(filepath.Join(dir, "result.json")); err != nil {
+		t.Fatal(err)
+	}
+	c, err := LoadRecorded(dir, Options{Mask: mask})
+	if err != nil || c.Result == nil || *c.Result.LowHz != *ra.LowHz {
+		t.Fatalf("without result.json: %v", err)
+	}
+	if _, ok := c.Result.GainAt(1000); !ok {
+		t.Error("an analysed result has no curve")
+	}
 }
