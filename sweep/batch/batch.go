@@ -7,6 +7,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"reflect"
 	"rolloff/sweep/export"
 	"runtime"
 	"sort"
@@ -27,8 +28,9 @@ var ErrNoRuns = errors.New("batch: no runs")
 
 // Options are the choices of Load.
 type Options struct {
-	// Mask is checked against every unit; nil checks none (every unit
-	// that could be analysed then counts as passing the yield).
+	// Mask is checked against every unit; nil checks each against its
+	// plan's mask, if any (a unit without one that could be analysed
+	// counts as passing the yield).
 	Mask *analysis.Mask
 	// Reference is the run directory of a reference unit, "" for none:
 	// each unit's corners and gain are compared with it.
@@ -114,6 +116,9 @@ func Load(dirs []string, opts Options) (*Batch, error) {
 	wg.Wait()
 	if err := errors.Join(errs...); err != nil {
 		return nil, err
+	}
+	if b.Mask == nil {
+		b.Mask = commonPlanMask(b.Units)
 	}
 	if opts.Reference != "" {
 		ref, err := loadUnit(opts.Reference, opts.Mask, report.Load)
@@ -221,4 +226,26 @@ func Write(dir string, b *Batch, paper report.Paper, software string) error {
 		return err
 	}
 	return export.WriteFileAtomic(filepath.Join(dir, FileSummary), pdfBuf.Bytes())
+}
+
+// commonPlanMask returns the mask every unit's plan gives, when they all
+// give the same one (the units were then checked against it); else nil.
+func commonPlanMask(units []*Unit) *analysis.Mask {
+	var first *analysis.Mask
+	for _, u := range units {
+		if u.In.Plan == nil {
+			return nil
+		}
+		m, err := u.In.Plan.LimitMask()
+		if err != nil || m == nil {
+			return nil
+		}
+		m.File = ""
+		if first == nil {
+			first = m
+		} else if !reflect.DeepEqual(first, m) {
+			return nil
+		}
+	}
+	return first
 }

@@ -276,3 +276,28 @@ func TestBatchErrors(t *testing.T) {
 		t.Error(err)
 	}
 }
+
+// TestBatchPlanMask checks that units whose plans carry the same mask are
+// held to it without --mask, and that differing masks give no common one.
+func TestBatchPlanMask(t *testing.T) {
+	st := filepath.Join(t.TempDir(), "runs")
+	tables := "[mask]\nname = \"plan acceptance\"\nrelative = true\nupper = [[20, 0.5], [30000, 0.5]]\nlower = [[20, -1], [30000, -1]]\n"
+	var dirs []string
+	for i := range 5 {
+		f := unitFixture(st, i)
+		f.PlanTables = tables
+		dirs = append(dirs, runfixture.Make(t, f))
+	}
+	b, err := Load(dirs, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b.Mask == nil || b.Mask.Name != "plan acceptance" || b.Passed != 4 || b.Units[3].Verdict != Fail {
+		t.Fatalf("mask %+v, passed %d", b.Mask, b.Passed)
+	}
+	f := unitFixture(st, 9)
+	dirs = append(dirs, runfixture.Make(t, f)) // no mask in its plan
+	if b, err = Load(dirs, Options{}); err != nil || b.Mask != nil || b.Units[5].Verdict != NoMask {
+		t.Fatalf("mixed plans: %v, mask %+v", err, b.Mask)
+	}
+}

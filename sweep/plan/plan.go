@@ -38,6 +38,9 @@ type Plan struct {
 	Batch    string `toml:"batch" json:"batch"`
 	Operator string `toml:"operator" json:"operator"`
 	Notes    string `toml:"notes" json:"notes"`
+	// Mask, when given, is the limit mask the response is checked
+	// against when the run finishes (see unit.go).
+	Mask Mask `toml:"mask" json:"mask"`
 
 	// src remembers the file name and the line of every key of the
 	// document the plan was decoded from, so that Validate can name them.

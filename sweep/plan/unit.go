@@ -1,7 +1,10 @@
 package plan
 
 import (
+	"strings"
+
 	"fmt"
+	"rolloff/sweep/analysis"
 	"strconv"
 	"unicode"
 	"unicode/utf8"
@@ -21,6 +24,11 @@ func (v *validator) unit() {
 	v.text("unit", p.Unit, MaxUnitBytes)
 	v.text("batch", p.Batch, MaxUnitBytes)
 	v.text("operator", p.Operator, 200)
+	if p.Mask.Given() {
+		if _, err := p.LimitMask(); err != nil {
+			v.add("mask", "", strings.TrimPrefix(err.Error(), analysis.ErrMask.Error()+": "))
+		}
+	}
 	switch n := p.Notes; {
 	case len(n) > MaxNotesBytes:
 		v.add("notes", strconv.Quote(n[:40])+"…", fmt.Sprintf("at most %d bytes", MaxNotesBytes))
@@ -34,4 +42,32 @@ func (v *validator) unit() {
 			}
 		}
 	}
+}
+
+// Mask is a limit mask written in the plan, with the keys of a mask file
+// (see analysis.Mask): name, relative, upper and lower, each line a list
+// of [frequency_hz, gain_db] vertices.
+type Mask struct {
+	Name     string      `toml:"name" json:"name"`
+	Relative bool        `toml:"relative" json:"relative"`
+	Upper    [][]float64 `toml:"upper" json:"upper"`
+	Lower    [][]float64 `toml:"lower" json:"lower"`
+}
+
+// Given reports whether any key of the mask is set.
+func (m Mask) Given() bool {
+	return m.Name != "" || m.Relative || len(m.Upper) > 0 || len(m.Lower) > 0
+}
+
+// LimitMask returns the plan's mask, nil when it has none; the error
+// names the plan file and the mask's key.
+func (p *Plan) LimitMask() (*analysis.Mask, error) {
+	if !p.Mask.Given() {
+		return nil, nil
+	}
+	file := "plan"
+	if p.src != nil && p.src.file != "" {
+		file = p.src.file
+	}
+	return analysis.NewMask(file+": mask", p.Mask.Name, p.Mask.Relative, p.Mask.Upper, p.Mask.Lower)
 }

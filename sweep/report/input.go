@@ -152,7 +152,8 @@ func FromRun(dir string) (*Input, error) {
 
 // Options are the choices of Load beyond the run directory.
 type Options struct {
-	// Mask, when not nil, is checked against the response.
+	// Mask, when not nil, is checked against the response; nil checks
+	// the plan's mask, if it has one.
 	Mask *analysis.Mask
 }
 
@@ -170,7 +171,7 @@ func Load(dir string, opts Options) (*Input, error) {
 		return nil, fmt.Errorf("report: %w", err)
 	}
 	in.Points = pts
-	ao := analysis.Options{Mask: opts.Mask}
+	ao := analysis.Options{Mask: maskFor(in, opts)}
 	if p := in.Plan; p != nil {
 		ao.LevelDB, ao.RefHz = p.Refine.LevelDB, p.ReferenceHz
 	}
@@ -184,6 +185,15 @@ func Load(dir string, opts Options) (*Input, error) {
 		in.Result = res
 	}
 	return in, nil
+}
+
+// maskFor returns the mask to check: opts.Mask, else the plan's.
+func maskFor(in *Input, opts Options) *analysis.Mask {
+	if opts.Mask != nil || in.Plan == nil {
+		return opts.Mask
+	}
+	m, _ := in.Plan.LimitMask()
+	return m
 }
 
 // throughOf reads the points of the plan's through run, which sits beside
@@ -239,8 +249,8 @@ func LoadRecorded(dir string, opts Options) (*Input, error) {
 	}
 	res.Samples = samples
 	res.Mask = nil
-	if opts.Mask != nil {
-		res.Mask = opts.Mask.Check(samples, res.ReferenceGainDB)
+	if m := maskFor(in, opts); m != nil {
+		res.Mask = m.Check(samples, res.ReferenceGainDB)
 	}
 	in.Points, in.Result = pts, &res
 	return in, nil

@@ -344,3 +344,26 @@ func TestLoadRecorded(t *testing.T) {
 		t.Error("an analysed result has no curve")
 	}
 }
+
+// TestReportPlanMask checks that a run whose plan carries a mask is
+// reported against it, with or without the recorded figures.
+func TestReportPlanMask(t *testing.T) {
+	f := demoFixture(40)
+	f.PlanTables = "[mask]\nname = \"plan limits\"\nrelative = true\nlower = [[10, -0.5], [20000, -0.5]]\n"
+	dir := makeRun(t, f)
+	for _, load := range []func(string, Options) (*Input, error){Load, LoadRecorded} {
+		in, err := load(dir, Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		// The 8 Hz corner is 3 dB down: −0.5 dB from 10 Hz fails.
+		if v := in.Result.Mask; v == nil || v.Name != "plan limits" || v.Pass {
+			t.Errorf("verdict %+v", v)
+		}
+	}
+	// A mask given explicitly replaces the plan's.
+	in, err := Load(dir, Options{Mask: relMask("loose", 100, 10e3, -1)})
+	if err != nil || in.Result.Mask.Name != "loose" || !in.Result.Mask.Pass {
+		t.Errorf("explicit mask: %v %+v", err, in.Result.Mask)
+	}
+}

@@ -399,7 +399,7 @@ func verdictBlock(d *Doc, in *Input, x, w float64) {
 	d.Font(false, bodyPt, inkText)
 	switch {
 	case r == nil || r.Mask == nil:
-		d.Para(x, w, "No limit mask was checked (rolloff report --mask FILE checks one).", 2)
+		d.Para(x, w, "No limit mask was checked: give one in the plan's [mask] table or with rolloff report --mask FILE.", 2)
 	default:
 		v := r.Mask
 		name := v.Name

@@ -47,7 +47,7 @@ func (s *sweeper) finish(ctx context.Context) error {
 // analyze runs the analysis with the plan's corner level and reference and
 // writes the exports beside the run's files.
 func (s *sweeper) analyze(pts []point.Point) ([]byte, error) {
-	res, err := analysis.Analyze(pts, analysis.Options{LevelDB: s.plan.Refine.LevelDB, RefHz: s.plan.ReferenceHz, Through: s.r.opts.Through})
+	res, err := analysis.Analyze(pts, analysis.Options{LevelDB: s.plan.Refine.LevelDB, RefHz: s.plan.ReferenceHz, Through: s.r.opts.Through, Mask: s.planMask()})
 	defer s.writeReport(pts, res, err)
 	if err != nil {
 		// The points are still exported, without figures.

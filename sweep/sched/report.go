@@ -18,3 +18,15 @@ func (s *sweeper) writeReport(pts []point.Point, res *analysis.Result, analysisE
 		s.r.logEvent("report: " + err.Error())
 	}
 }
+
+// planMask returns the plan's limit mask, nil when it has none. The plan
+// was validated before the run started, so a mask that does not build is
+// only logged.
+func (s *sweeper) planMask() *analysis.Mask {
+	m, err := s.plan.LimitMask()
+	if err != nil {
+		s.r.logEvent("mask: " + err.Error())
+		return nil
+	}
+	return m
+}

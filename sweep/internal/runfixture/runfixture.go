@@ -40,6 +40,9 @@ type Fixture struct {
 	// (default a fresh temporary one).
 	Created time.Time
 	Store   string
+	// PlanTables is appended to the plan document (tables such as
+	// [mask]).
+	PlanTables string
 }
 
 // |H| of a first-order high-pass
@@ -86,6 +89,7 @@ func Make(t testing.TB, f Fixture) string {
 	}
 	planDoc := fmt.Sprintf("name = %q\nunit = %q\nbatch = %q\noperator = %q\nnotes = %q\nreference_hz = %g\n[frequencies]\nspacing = \"log\"\nstart_hz = %g\nstop_hz = %g\npoints = %d\n[level]\nvrms = 0.05\n",
 		f.Name, f.Unit, f.Batch, f.Operator, f.Notes, math.Sqrt(f.StartHz*f.StopHz), f.StartHz, f.StopHz, f.N)
+	planDoc += f.PlanTables
 	p, err := plan.DecodeTOML("plan.toml", []byte(planDoc))
 	if err != nil {
 		t.Fatal(err)
