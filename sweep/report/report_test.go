@@ -239,6 +239,9 @@ func TestReportRunDir(t *testing.T) {
 	}
 	if _, err := exec.LookPath("pdftotext"); err == nil {
 		wantText(t, pdfText(t, filepath.Join(dir, FileReport)), "NO FIGURES", "No figures: "+analysis.ErrResponse.Error())
+		if n := checkLayout(t, filepath.Join(dir, FileReport)); n != 1 {
+			t.Errorf("%d pages, want 1", n)
+		}
 	}
 }
 
