@@ -33,7 +33,8 @@ func reportMain(stdout, stderr io.Writer, args []string) error {
 	fs.Usage = func() {
 		fmt.Fprintf(stderr, "usage: rolloff report RUNDIR [-o FILE] [--paper a4|letter] [--mask FILE]\n\n"+
 			"Writes the run's report: the unit, the bench, the plan, the Bode plot, the figures with their\n"+
-			"uncertainties, the model, the mask verdict and the safety statement, on one page where it fits.\n\n")
+			"uncertainties, the model, the mask verdict and the safety statement, on one page where it fits.\n"+
+			"The figures are those the run recorded (result.json); the mask is --mask, else the plan's.\n\n")
 		fs.PrintDefaults()
 	}
 	pos, err := parseInterleaved(fs, args)
@@ -56,7 +57,7 @@ func reportMain(stdout, stderr io.Writer, args []string) error {
 		}
 		opts.Mask = m
 	}
-	in, err := report.Load(pos[0], opts)
+	in, err := report.LoadRecorded(pos[0], opts)
 	if err != nil {
 		return err
 	}

@@ -48,6 +48,17 @@ type Input struct {
 	Points      []point.Point
 	Result      *analysis.Result
 	AnalysisErr string
+	// Mask is the mask the result was checked against, for the plot (nil:
+	// the one the analysis recorded, if any).
+	Mask *analysis.Mask
+}
+
+// maskDrawn returns the mask to draw: in.Mask, else the analysis' own.
+func (in *Input) maskDrawn() *analysis.Mask {
+	if in.Mask != nil || in.Result == nil {
+		return in.Mask
+	}
+	return in.Result.MaskUsed()
 }
 
 // Instrument is one role of the bench: its *IDN? identity (zero when it
@@ -171,7 +182,8 @@ func Load(dir string, opts Options) (*Input, error) {
 		return nil, fmt.Errorf("report: %w", err)
 	}
 	in.Points = pts
-	ao := analysis.Options{Mask: maskFor(in, opts)}
+	in.Mask = maskFor(in, opts)
+	ao := analysis.Options{Mask: in.Mask}
 	if p := in.Plan; p != nil {
 		ao.LevelDB, ao.RefHz = p.Refine.LevelDB, p.ReferenceHz
 	}
@@ -217,8 +229,9 @@ func throughOf(dir string, p *plan.Plan) ([]point.Point, error) {
 // result.json, when it has one for all its points, instead of analysing
 // again: the samples are rebuilt from the points (normalised by the
 // through run as the analysis does) and the mask is checked on them as
-// Analyze checks it. The Result's curve is not available (GainAt reports
-// false); a run without a usable result.json is analysed by Load.
+// Analyze checks it. The Result's interpolated curve is not available
+// (GainAt reports false; the fitted model is); a run without a usable
+// result.json is analysed by Load.
 func LoadRecorded(dir string, opts Options) (*Input, error) {
 	data, err := os.ReadFile(filepath.Join(dir, store.FileResult))
 	if err != nil {
@@ -249,8 +262,8 @@ func LoadRecorded(dir string, opts Options) (*Input, error) {
 	}
 	res.Samples = samples
 	res.Mask = nil
-	if m := maskFor(in, opts); m != nil {
-		res.Mask = m.Check(samples, res.ReferenceGainDB)
+	if in.Mask = maskFor(in, opts); in.Mask != nil {
+		res.Mask = in.Mask.Check(samples, res.ReferenceGainDB)
 	}
 	in.Points, in.Result = pts, &res
 	return in, nil

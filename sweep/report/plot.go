@@ -84,7 +84,7 @@ func ResponseChart(d *Doc, x, y, w, h float64, in *Input) *Chart {
 	var offset float64
 	if r != nil {
 		loDB, hiDB = math.Min(loDB, r.ThresholdDB), math.Max(hiDB, r.ReferenceGainDB)
-		if mask = r.MaskUsed(); mask != nil && mask.Relative {
+		if mask = in.maskDrawn(); mask != nil && mask.Relative {
 			offset = r.ReferenceGainDB
 		}
 	}
@@ -127,9 +127,7 @@ func ResponseChart(d *Doc, x, y, w, h float64, in *Input) *Chart {
 		var mh, md []float64
 		for i := 0; i <= n; i++ {
 			f := r.SweepHz[0] * math.Pow(r.SweepHz[1]/r.SweepHz[0], float64(i)/float64(n))
-			if g, ok := r.GainAt(f); ok {
-				mh, md = append(mh, f), append(md, g)
-			}
+			mh, md = append(mh, f), append(md, r.Model.At(f))
 		}
 		c.Line(mh, md, strokeModel)
 	}
@@ -179,7 +177,7 @@ func legend(c *Chart, in *Input) []LegendItem {
 		if r.LowHz != nil || r.HighHz != nil {
 			items = append(items, LegendItem{Text: "corner", Draw: c.SampleMark(Diamond, 1.8, inkText)})
 		}
-		if r.MaskUsed() != nil {
+		if in.maskDrawn() != nil {
 			items = append(items, LegendItem{Text: "mask", Draw: c.SampleLine(strokeMask)},
 				LegendItem{Text: "worst margin", Draw: c.SampleMark(Cross, 2.2, inkText)})
 		}

@@ -335,6 +335,22 @@ func TestLoadRecorded(t *testing.T) {
 	if ra.Mask.Pass {
 		t.Error("the tight mask passed: the comparison shows nothing")
 	}
+	// The recorded model is the analysed curve when it is accepted.
+	if ra.Model == nil || !ra.Model.Accepted || rb.Model == nil {
+		t.Fatal("fixture has no accepted model")
+	}
+	for _, f := range []float64{4, 8, 100, 1e4, 95e3, 1e6} {
+		g, ok := ra.GainAt(f)
+		if !ok {
+			t.Fatalf("%g Hz outside the sweep", f)
+		}
+		if d := rb.Model.At(f) - g; d > 1e-9 || d < -1e-9 {
+			t.Errorf("%g Hz: recorded model %g dB, analysed curve %g dB", f, rb.Model.At(f), g)
+		}
+	}
+	if b.Mask != mask || a.Mask != mask {
+		t.Error("the mask checked is not the one drawn")
+	}
 	// Without result.json the run is analysed.
 	if err := os.Remove(filepath.Join(dir, "result.json")); err != nil {
 		t.Fatal(err)
