@@ -147,7 +147,7 @@ func (s *Server) route(w http.ResponseWriter, r *http.Request) {
 	case p == "/api/runs":
 		switch r.Method {
 		case http.MethodGet, http.MethodHead:
-			writeJSON(w, http.StatusOK, map[string]any{"runs": s.queue.List()})
+			s.listRuns(w, r)
 		case http.MethodPost:
 			s.submit(w, r)
 		default:
