@@ -131,7 +131,12 @@ func (s *Server) route(w http.ResponseWriter, r *http.Request) {
 			s.index(w, r)
 		}
 		return
-	case p == "/app.js" || p == "/plot.js" || p == "/style.css":
+	case p == "/line":
+		if method(w, r, http.MethodGet) {
+			s.linePage(w, r)
+		}
+		return
+	case p == "/app.js" || p == "/plot.js" || p == "/style.css" || p == "/line.js" || p == "/line.css":
 		if method(w, r, http.MethodGet) {
 			s.asset(w, r, p[1:])
 		}
