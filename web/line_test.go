@@ -82,6 +82,8 @@ func TestLineBrowser(t *testing.T) {
 	if y := jsString(ctx, `document.getElementById('yield').innerText`); !strings.Contains(y, "yield 50.0 %") {
 		t.Errorf("yield %q", y)
 	}
+	// The history overlays the units listed.
+	waitLine(t, ctx, `window.rolloffLine.overlaid === 2 && document.getElementById('overlay').naturalWidth > 0`, 20*time.Second)
 	// The history filters by unit.
 	if err := chromedp.Do(ctx, chromedp.SetValue(chromedp.ID("f-unit"), "LD-0043"), chromedp.Click(chromedp.CSS(`#filter-form button`))); err != nil {
 		t.Fatal(err)

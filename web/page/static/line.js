@@ -182,6 +182,23 @@
       ? 'yield ' + (100 * passed / checked).toFixed(1) + ' % (' + passed + ' of ' + checked + ' units checked against a mask pass; ' + runs.length + ' runs listed)'
       : runs.length + ' runs listed, none checked against a mask';
     state.listed = runs.length;
+    overlay(runs);
+  }
+
+  // overlay shows the responses of the most recent finished units listed
+  // (as many as the daemon overlays at once), fetched with the token.
+  let overlayURL = null;
+  async function overlay(runs) {
+    const ids = runs.filter(function (r) { return r.state === 'done'; }).slice(0, 8).map(function (r) { return r.id; });
+    const img = $('overlay');
+    if (!ids.length) { img.hidden = true; return; }
+    const r = await fetch('/api/overlay.png?runs=' + ids.map(encodeURIComponent).join(','), { headers: headers(false), cache: 'no-store' });
+    if (!r.ok) { img.hidden = true; return; }
+    if (overlayURL) URL.revokeObjectURL(overlayURL);
+    overlayURL = URL.createObjectURL(await r.blob());
+    img.src = overlayURL;
+    img.hidden = false;
+    state.overlaid = ids.length;
   }
 
   $('filter-form').addEventListener('submit', function (ev) { ev.preventDefault(); refresh(); });
