@@ -28,14 +28,15 @@ import (
 	"rolloff/web/page"
 )
 
-// files maps the result files a run serves (store.ResultFiles) to their
-// content types.
+// files maps the files a run serves (store.ResultFiles and the report)
+// to their content types.
 var files = map[string]string{
 	store.FileResponseCSV: "text/csv; charset=utf-8",
 	store.FileResult:      "application/json",
 	store.FileResponsePNG: "image/png",
 	store.FileResponseSVG: "image/svg+xml",
 	store.FileResponsePDF: "application/pdf",
+	store.FileReport:      "application/pdf",
 }
 
 // RetryAfterFullS is the Retry-After, in seconds, of a submission
@@ -167,7 +168,12 @@ func (s *Server) route(w http.ResponseWriter, r *http.Request) {
 			s.index(w, r)
 		}
 		return
-	case p == "/app.js" || p == "/plot.js" || p == "/style.css":
+	case p == "/line":
+		if method(w, r, http.MethodGet) {
+			s.linePage(w, r)
+		}
+		return
+	case p == "/app.js" || p == "/plot.js" || p == "/style.css" || p == "/line.js" || p == "/line.css":
 		if method(w, r, http.MethodGet) {
 			s.asset(w, r, p[1:])
 		}
@@ -183,7 +189,7 @@ func (s *Server) route(w http.ResponseWriter, r *http.Request) {
 	case p == "/api/runs":
 		switch r.Method {
 		case http.MethodGet, http.MethodHead:
-			writeJSON(w, http.StatusOK, map[string]any{"runs": s.queue.List()})
+			s.listRuns(w, r)
 		case http.MethodPost:
 			s.submit(w, r)
 		default:
@@ -525,7 +531,7 @@ func (s *Server) points(w http.ResponseWriter, r *http.Request, id string) {
 func (s *Server) file(w http.ResponseWriter, r *http.Request, id, name string) {
 	ct, ok := files[name]
 	if !ok {
-		guard.WriteError(w, http.StatusNotFound, "name", fmt.Sprintf("file %q: want one of %s", clip(name), strings.Join(store.ResultFiles(), ", ")))
+		guard.WriteError(w, http.StatusNotFound, "name", fmt.Sprintf("file %q: want one of %s", clip(name), strings.Join(append(store.ResultFiles(), store.FileReport), ", ")))
 		return
 	}
 	if _, err := s.queue.Get(id); err != nil {

@@ -6,7 +6,7 @@
 // status):
 //
 //	GET  /api/bench                     instruments, roles, identities, limits, converter ranges
-//	GET  /api/runs                      every run, newest first
+//	GET  /api/runs                      every run, newest first (?unit=U&batch=B: those of a unit, a batch)
 //	POST /api/runs                      a plan (JSON, the plan file's fields) or
 //	                                    {"plan_toml": "...", "file_name": "..."}; 201 {"id": ...}
 //	POST /api/plan/estimate             points and duration of a plan, before starting it
@@ -15,7 +15,7 @@
 //	                                    interrupted run from the store
 //	POST /api/runs/{id}/confirm         {"prompt_id": n, "range_index": i}
 //	GET  /api/runs/{id}/points          stored points (?from_seq=n)
-//	GET  /api/runs/{id}/files/{name}    response.csv, result.json, response.png|svg|pdf
+//	GET  /api/runs/{id}/files/{name}    response.csv, result.json, response.png|svg|pdf, report.pdf
 //	GET  /api/overlay.png|svg|pdf       ?runs=a,b[&diff=1]
 //	GET  /api/runs/{id}/live            websocket: event.Event JSON messages; on
 //	                                    connect the run so far, then every event; a

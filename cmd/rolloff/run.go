@@ -232,6 +232,7 @@ func printCorners(w io.Writer, res map[string]any) {
 			fmt.Fprintf(w, "%s: %s\n", c.name, analysis.FormatHz(v, 6))
 		}
 	}
+	printMaskVerdict(w, res)
 }
 
 // progress shows a run's progress: a bar on a terminal, log lines

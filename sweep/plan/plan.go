@@ -32,6 +32,15 @@ type Plan struct {
 	ReferenceHz float64   `toml:"reference_hz" json:"reference_hz"`
 	Refine      Refine    `toml:"refine" json:"refine"`
 	Normalize   Normalize `toml:"normalize" json:"normalize"`
+	// Unit, Batch, Operator and Notes identify what is measured, for the
+	// report and the batch summary (see unit.go).
+	Unit     string `toml:"unit" json:"unit"`
+	Batch    string `toml:"batch" json:"batch"`
+	Operator string `toml:"operator" json:"operator"`
+	Notes    string `toml:"notes" json:"notes"`
+	// Mask, when given, is the limit mask the response is checked
+	// against when the run finishes (see unit.go).
+	Mask Mask `toml:"mask" json:"mask"`
 
 	// src remembers the file name and the line of every key of the
 	// document the plan was decoded from, so that Validate can name them.

@@ -71,6 +71,7 @@ func (p *Plan) Validate(lim driver.GeneratorLimits) error {
 	v.settle()
 	v.ranging()
 	v.refine()
+	v.unit()
 	if t := p.Normalize.ThroughRun; t != "" {
 		if err := CheckRunID(t); err != nil {
 			v.add("normalize.through_run", strconv.Quote(t), err.Error())

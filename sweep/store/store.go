@@ -62,6 +62,9 @@ const (
 	FileResponsePNG = "response.png"
 	FileResponseSVG = "response.svg"
 	FileResponsePDF = "response.pdf"
+	// FileReport is the one-page run report (package sweep/report),
+	// written by the finish step after the result files.
+	FileReport = "report.pdf"
 )
 
 // ResultFiles returns the names of a finished run's result files, in the
@@ -189,6 +192,9 @@ type PlanSummary struct {
 	ReferenceHz    float64 `json:"reference_hz"`
 	Refine         bool    `json:"refine,omitempty"`
 	ThroughRun     string  `json:"through_run,omitempty"`
+	// Unit and Batch are the plan's serial number and batch.
+	Unit  string `json:"unit,omitempty"`
+	Batch string `json:"batch,omitempty"`
 }
 
 // Summarize sums up a plan for meta.json.
@@ -205,6 +211,7 @@ func Summarize(p *plan.Plan) (PlanSummary, error) {
 		Spacing: p.Frequencies.Spacing, StartHz: lo, StopHz: hi, Points: len(fs),
 		Descending: p.Frequencies.Descending, Vrms: p.Level.Vrms, Strategy: p.Ranging.Strategy,
 		ReferenceHz: p.ReferenceHz, Refine: p.Refine.Enabled, ThroughRun: p.Normalize.ThroughRun,
+		Unit: p.Unit, Batch: p.Batch,
 	}
 	if s.Spacing == plan.SpacingBands {
 		s.BandsPerOctave = p.Frequencies.BandsPerOctave

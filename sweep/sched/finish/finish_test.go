@@ -8,8 +8,10 @@ import (
 	"path/filepath"
 	"testing"
 
+	"rolloff/configs"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/point"
+	"rolloff/sweep/store"
 )
 
 // lowPass returns points of a first-order low pass of corner fcHz,
@@ -26,8 +28,8 @@ func lowPass(fcHz float64) []point.Point {
 
 func TestAnalyzeWritesExportsAndResult(t *testing.T) {
 	const fc = 2000.0
-	dir := t.TempDir()
 	p := &plan.Plan{ReferenceHz: 10}
+	dir := newRunDir(t)
 	js, err := Analyze(p, dir, nil)(context.Background(), lowPass(fc))
 	if err != nil {
 		t.Fatal(err)
@@ -43,7 +45,7 @@ func TestAnalyzeWritesExportsAndResult(t *testing.T) {
 	if res.HighHz == nil || math.Abs(*res.HighHz/fc-1) > 5e-3 {
 		t.Fatalf("corner %v in %s, want %g Hz", res.HighHz, js, fc)
 	}
-	for _, name := range []string{"response.csv", "result.json"} {
+	for _, name := range []string{"response.csv", "result.json", "report.pdf"} {
 		if st, err := os.Stat(filepath.Join(dir, name)); err != nil || st.Size() == 0 {
 			t.Errorf("%s: %v", name, err)
 		}
@@ -51,12 +53,37 @@ func TestAnalyzeWritesExportsAndResult(t *testing.T) {
 }
 
 func TestAnalyzeFailureStillExportsPoints(t *testing.T) {
-	dir := t.TempDir()
+	p := &plan.Plan{ReferenceHz: 10}
+	dir := newRunDir(t)
 	pts := lowPass(2000)[:1] // one point: nothing to analyse
-	if _, err := Analyze(&plan.Plan{ReferenceHz: 10}, dir, nil)(context.Background(), pts); err == nil {
+	if _, err := Analyze(p, dir, nil)(context.Background(), pts); err == nil {
 		t.Fatal("one point analysed without error")
 	}
 	if _, err := os.Stat(filepath.Join(dir, "response.csv")); err != nil {
 		t.Errorf("points not exported: %v", err)
 	}
+	if _, err := os.Stat(filepath.Join(dir, "report.pdf")); err != nil {
+		t.Errorf("no report saying why there are no figures: %v", err)
+	}
+}
+
+// newRunDir creates a run in a fresh store (its plan document the
+// shipped demo plan) and returns its directory, for the finish step to
+// write into as the scheduler's caller would.
+func newRunDir(t *testing.T) string {
+	t.Helper()
+	data, err := configs.ReadFile("demo-plan.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	st, err := store.Open(t.TempDir())
+	if err != nil {
+		t.Fatal(err)
+	}
+	run, err := st.Create(store.CreateOpts{PlanFile: "plan.toml", PlanData: data})
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { run.Close() })
+	return run.Dir()
 }
