@@ -147,9 +147,9 @@ const (
 	maxSpecDB      = 6
 	maxSpecBands   = 64
 	maxDriftPPM    = 1e6
-	driftKnotS     = 10.0   // random-walk knots, model seconds apart
+	driftKnotS     = 10.0    // random-walk knots, model seconds apart
 	maxDriftKnots  = 1 << 20 // past ~121 model days the walk holds still
-	secondsPerHour = 3600.0 // drift rates are per hour of model time
+	secondsPerHour = 3600.0  // drift rates are per hour of model time
 )
 
 // validateSystematic checks the [sim] systematic, drift and spec keys.
