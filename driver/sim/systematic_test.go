@@ -548,6 +548,12 @@ func TestSystematicBenchFile(t *testing.T) {
 	}
 
 	c, err = load(map[string][2]string{
+		configs.SimBench: {"# systematic = false\n", "systematic = true\n"},
+	})
+	if err != nil || !c.Systematic {
+		t.Fatalf("sim-bench.toml with systematic = true: %v, %+v", err, c)
+	}
+	c, err = load(map[string][2]string{
 		configs.SimBench:            {"[sim.switch]\n", "[sim.spec.generator]\namplitude_pct = 2.5\n[sim.switch]\n"},
 		"converter-10db-relay.toml": {"range_gain_pct = 0.5\n", "range_gain_pct = 0.25\n"},
 	})
