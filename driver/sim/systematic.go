@@ -414,7 +414,7 @@ func (e SystematicErrors) clone() SystematicErrors {
 // when [sim] systematic is off).
 func (b *Bench) Systematic() SystematicErrors { return b.sys.clone() }
 
-// converterParamsErrors puts the drawn converter errors into the model's
+// converterParams puts the drawn converter errors into the model's
 // parameters.
 func (e *SystematicErrors) converterParams(cp *model.ConverterParams) {
 	if !e.On {
