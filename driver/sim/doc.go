@@ -57,9 +57,10 @@
 // Systematic errors (systematic = true; off by default): each instrument
 // draws its errors once from [spec], rectangular on the ± limit (JCGM
 // 100:2008 §4.3.7), from its own stream seeded by seed, and keeps them:
-// the converter's input is scaled by (1 + range gain)·(1 + band
-// flatness) and its output is x + λ·4x(1−x) of full scale (end-point
-// linearity λ); the DC voltmeter reads v·(1 + gain) + offset on each
+// the converter's reading x (fraction of full scale) is scaled by
+// (1 + range gain)·(1 + band flatness) and its output is x + λ·4x(1−x)
+// of full scale (end-point linearity λ), the mean-square state staying
+// the true one, so a range change still rescales the output at once; the DC voltmeter reads v·(1 + gain) + offset on each
 // range; the generator puts out (1 + amplitude)·10^(band flatness/20)
 // times its setting (PeakDUTInputVrms and DUTInputVrms include it).
 // drift_ppm_per_hour and drift_walk_ppm multiply the converter's output

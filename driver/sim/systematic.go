@@ -350,8 +350,8 @@ func (e *SystematicErrors) ConverterBand(rng int, freqHz float64) int {
 	return -1
 }
 
-// ConverterGain returns the converter's input gain factor on range rng at
-// freqHz: (1 + range gain)·(1 + band flatness); 1 with the errors off.
+// ConverterGain returns the factor on the converter's reading on range rng
+// for an input at freqHz: (1 + range gain)·(1 + band flatness); 1 with the errors off.
 func (e *SystematicErrors) ConverterGain(rng int, freqHz float64) float64 {
 	if !e.On || rng < 0 || rng >= len(e.ConverterRangeGain) {
 		return 1

@@ -291,7 +291,7 @@ func measure(t *testing.T, b *Bench, pts []point, ampVrms float64) []float64 {
 // predict returns what a bench with errors e reads at p, given the
 // converter input an ideal bench sees there (idealVrms, its reading):
 // the generator puts out (1 + amplitude)·10^(flatness/20) times its
-// setting; the converter's range gain and band flatness scale its input,
+// setting; the converter's range gain and band flatness scale its reading,
 // its output is x + λ·4x(1−x) of full scale for a fraction x
 // (model.LinearityShape); the DC voltmeter's 1 V range (index 1) reads
 // v·(1 + gain) + offset; the controller divides by dc_full_scale_v and

@@ -15,9 +15,11 @@ type ConverterParams struct {
 	SaturateFraction float64 // the DC output saturates at this × DCFullScaleV
 	FloorFraction    float64 // input-referred noise floor, fraction of full scale, adds in power
 	Hold             Hold    // output frozen periodically
-	// InputGain, when set, is the converter's gain error as a factor on
-	// its input amplitude on range rng at freqHz (range calibration times
-	// flatness; 1 is perfect). Nil: no error.
+	// InputGain, when set, is the converter's gain error on range rng
+	// for an input at freqHz, as a factor on the reading (range
+	// calibration times flatness; 1 is perfect). It scales the RMS the
+	// mean-square state stands for, not the state, so that a range
+	// change still rescales the output at once. Nil: no error.
 	InputGain func(rng int, freqHz float64) float64
 	// Linearity is the end-point linearity error λ, a fraction of full
 	// scale: the DC output is x + λ·LinearityShape(x) of full scale for a
@@ -68,10 +70,6 @@ func (c *Converter) effective(rng int) MeanSquare {
 		return MeanSquare{FreqHz: c.input.FreqHz}
 	}
 	ms := c.input
-	if c.p.InputGain != nil {
-		g := c.p.InputGain(rng, ms.FreqHz)
-		ms = scaleMS(ms, g*g)
-	}
 	floor := c.p.FloorFraction * c.p.Ranges[rng].FullScaleVrms
 	ms.C0 += floor * floor
 	return ms
@@ -108,22 +106,16 @@ func (c *Converter) dc(y float64, rng int) float64 {
 	if rng < 0 || rng >= len(c.p.Ranges) {
 		return 0
 	}
-	if c.p.Linearity != 0 {
+	if c.p.InputGain != nil || c.p.Linearity != 0 {
 		x := math.Sqrt(math.Max(y, 0)) / c.p.Ranges[rng].FullScaleVrms
+		if c.p.InputGain != nil {
+			x *= c.p.InputGain(rng, c.input.FreqHz)
+		}
 		return (x + c.p.Linearity*LinearityShape(x)) * c.p.DCFullScaleV
 	}
 	return math.Sqrt(math.Max(y, 0)) / c.p.Ranges[rng].FullScaleVrms * c.p.DCFullScaleV
 }
 
-// scaleMS returns ms with every term multiplied by k (a gain of √k on the
-// signal).
-func scaleMS(ms MeanSquare, k float64) MeanSquare {
-	out := MeanSquare{FreqHz: ms.FreqHz, C0: ms.C0 * k, Terms: make([]Term, len(ms.Terms))}
-	for i, t := range ms.Terms {
-		out.Terms[i] = Term{K: t.K, A: t.A * complex(k, 0)}
-	}
-	return out
-}
 
 // output is the DC output stage: the unsaturated output clamped at the
 // saturation level.
