@@ -116,7 +116,6 @@ func (c *Converter) dc(y float64, rng int) float64 {
 	return math.Sqrt(math.Max(y, 0)) / c.p.Ranges[rng].FullScaleVrms * c.p.DCFullScaleV
 }
 
-
 // output is the DC output stage: the unsaturated output clamped at the
 // saturation level.
 func (c *Converter) output(y float64, rng int) float64 {
