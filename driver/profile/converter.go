@@ -37,6 +37,10 @@ type Converter struct {
 	Ranges []ConverterRange `toml:"ranges"`
 	// Accuracy is the specification table; first matching row wins.
 	Accuracy []ConverterAccuracy `toml:"accuracy"`
+	// RangeGainPct and LinearityPct split the specification into its
+	// components (see spec.go); 0 when the profile does not say.
+	RangeGainPct float64 `toml:"range_gain_pct"`
+	LinearityPct float64 `toml:"linearity_pct"`
 }
 
 // Range selection modes.
@@ -65,6 +69,10 @@ type ConverterAccuracy struct {
 	FromHz     float64  `toml:"from_hz"`
 	ToHz       float64  `toml:"to_hz"`
 	ReadingPct float64  `toml:"reading_pct"`
+	// FlatnessPct is the part of ReadingPct due to the frequency
+	// response in this band (see spec.go); 0 when the profile does not
+	// say.
+	FlatnessPct float64 `toml:"flatness_pct"`
 
 	idx []int
 }
@@ -164,6 +172,7 @@ func (c *Converter) validate(p *problems) {
 			p.add(k+".reading_pct", a.ReadingPct, "more than 0, at most 100 %", "bad accuracy")
 		}
 	}
+	c.validateSpec(p)
 }
 
 // DriverRanges returns the ranges as driver.Range values.

@@ -19,6 +19,9 @@ type Generator struct {
 	Limits   GeneratorInstrumentLimit `toml:"limits"`
 	Output   GeneratorOutput          `toml:"output"`
 	Commands GeneratorCommands        `toml:"commands"`
+	// Accuracy is the amplitude specification (see spec.go); nil when the
+	// profile gives none.
+	Accuracy *GeneratorAccuracy `toml:"accuracy"`
 
 	// T holds the compiled command templates.
 	T GeneratorTemplates `toml:"-"`
@@ -301,6 +304,7 @@ func (g *Generator) validate(p *problems) {
 	t.OutputOn = compileTemplate(p, "commands.output_on", c.OutputOn, true)
 	t.OutputOff = compileTemplate(p, "commands.output_off", c.OutputOff, true)
 	g.checkGeneratorTemplates(p)
+	g.validateSpec(p)
 	if c.ReadbackTolerance != 0 && (!finite(c.ReadbackTolerance) || c.ReadbackTolerance < 1e-9 || c.ReadbackTolerance > 0.1) {
 		p.add("commands.readback_tolerance", c.ReadbackTolerance, "1e-9 to 0.1 (relative), or 0 for the default 2e-3", "bad read-back tolerance")
 	}

@@ -67,6 +67,8 @@ type Bench struct {
 	rngConv   *rand.Rand
 	rngVM     *rand.Rand
 	rngDMM    *rand.Rand
+	sys       SystematicErrors // drawn at New, kept for life
+	drift     *drift           // converter gain drift, nil: none
 	started   bool
 	closed    bool
 
@@ -96,6 +98,9 @@ func New(cfg Config) (*Bench, error) {
 	for _, r := range cfg.Converter.Ranges {
 		cp.Ranges = append(cp.Ranges, model.Range{FullScaleVrms: r.FullScaleVrms, TauS: r.TimeConstantS})
 	}
+	b.sys = drawSystematic(&cfg)
+	b.sys.converterParams(&cp)
+	b.drift = newDrift(&cfg)
 	b.conv = model.NewConverter(cp, 0, cfg.Converter.InitialRange)
 	b.dmm = model.NewAverager(0, cfg.DMM.TimeConstantS, 0)
 	b.rngConv = rand.New(rand.NewPCG(cfg.Seed, streamConverter))
@@ -118,6 +123,7 @@ func cloneConfig(c Config) Config {
 	c.Converter.Ranges = append([]Range(nil), c.Converter.Ranges...)
 	c.Voltmeter.RangesV = append([]float64(nil), c.Voltmeter.RangesV...)
 	c.DMM.RangesVrms = append([]float64(nil), c.DMM.RangesVrms...)
+	c.Spec = c.Spec.clone()
 	return c
 }
 
@@ -252,7 +258,7 @@ func (b *Bench) sleepUntil(ctx context.Context, t float64) error {
 func (b *Bench) applyLocked(t float64) {
 	sig := model.Signal{Shape: b.gen.shape, FreqHz: b.gen.freqHz}
 	if b.gen.on {
-		sig.Vrms = b.gen.dutVrms(b.cfg.Generator.SourceOhm, b.cfg.DUT.InputOhm)
+		sig.Vrms = b.gen.dutVrms(b.cfg.Generator.SourceOhm, b.cfg.DUT.InputOhm) * b.sys.GeneratorGain(b.gen.freqHz)
 	}
 	b.notePeakLocked()
 	if sig != b.sig {
@@ -336,7 +342,7 @@ func (b *Bench) dcOutputLocked(t float64) float64 {
 	if time.Now().Before(b.overUntil) {
 		return b.cfg.Converter.SaturateFraction * b.cfg.Converter.DCFullScaleV
 	}
-	return b.conv.DCOutput(t)
+	return b.conv.DCOutput(t) * b.drift.factor(t)
 }
 
 // DUTGainDB returns the DUT's small-signal gain at freqHz, dB.

@@ -39,6 +39,7 @@ func FromBenchFile(b *profile.BenchFile) (*Config, error) {
 	}
 	syncConverter(b, &c, add)
 	syncMeters(b, &c, add)
+	syncSpec(b, &c)
 	if err := c.Validate(); err != nil {
 		ces := fielderr.All(err)
 		if len(ces) == 0 {

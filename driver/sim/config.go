@@ -26,6 +26,18 @@ type Config struct {
 	LineHz float64 `toml:"line_hz"`
 	// ErrorQueueLen bounds each instrument's error/event queue.
 	ErrorQueueLen int `toml:"error_queue_len"`
+	// Systematic makes each instrument draw its systematic errors from
+	// Spec, seeded by Seed, and keep them for its life (systematic.go).
+	// Default off: an ideal bench.
+	Systematic bool `toml:"systematic"`
+	// DriftPPMPerHour and DriftWalkPPM drift the converter's gain in
+	// model time: a linear drift at this rate and a seeded random walk
+	// of this RMS after one hour (0 and 0: none).
+	DriftPPMPerHour float64 `toml:"drift_ppm_per_hour"`
+	DriftWalkPPM    float64 `toml:"drift_walk_ppm"`
+	// Spec holds the specifications the systematic errors are drawn
+	// from.
+	Spec SpecConfig `toml:"spec"`
 
 	Generator GeneratorConfig `toml:"generator"`
 	DUT       DUTConfig       `toml:"dut"`
@@ -255,6 +267,7 @@ func DemoConfig() Config {
 			MaxSamples:        1000,
 		},
 		Switch: SwitchConfig{IDN: "rolloff,SIM-SW-1,0001,1.0"},
+		Spec:   demoSpec(),
 	}
 }
 
@@ -428,6 +441,7 @@ func (c *Config) Validate() error {
 	}
 
 	idn("switch.idn", c.Switch.IDN)
+	errs = append(errs, c.validateSystematic()...)
 	if len(errs) == 0 {
 		return nil
 	}

@@ -54,6 +54,19 @@
 // largest RMS it has put into the DUT input, DC offset included
 // (PeakDUTInputVrms), from its own state alone.
 //
+// Systematic errors (systematic = true; off by default): each instrument
+// draws its errors once from [spec], rectangular on the ± limit (JCGM
+// 100:2008 §4.3.7), from its own stream seeded by seed, and keeps them:
+// the converter's reading x (fraction of full scale) is scaled by
+// (1 + range gain)·(1 + band flatness) and its output is x + λ·4x(1−x)
+// of full scale (end-point linearity λ), the mean-square state staying
+// the true one, so a range change still rescales the output at once; the DC voltmeter reads v·(1 + gain) + offset on each
+// range; the generator puts out (1 + amplitude)·10^(band flatness/20)
+// times its setting (PeakDUTInputVrms and DUTInputVrms include it).
+// drift_ppm_per_hour and drift_walk_ppm multiply the converter's output
+// by 1 + a linear drift plus a seeded random walk in model time.
+// Bench.Systematic returns the drawn errors.
+//
 // # Configuration keys
 //
 // A bench file's [sim] table decodes into Config (TOML, lower_snake_case
@@ -61,7 +74,8 @@
 // FromBenchFile does that for a decoded bench file and reconciles the
 // result with the profiles the file names:
 //
-//	seed, time_scale, line_hz, error_queue_len
+//	seed, time_scale, line_hz, error_queue_len, systematic,
+//	drift_ppm_per_hour, drift_walk_ppm
 //	[generator] idn, min_freq_hz, max_freq_hz, min_vrms, max_vrms,
 //	            source_ohm, load_ohm (0 = INFinity), reset_freq_hz,
 //	            reset_vrms, reset_unit ("VRMS"|"VPP"|"DBM"), harmonics,
@@ -78,6 +92,11 @@
 //	            time_constant_s, bandwidth_hz (0 = none), reset_nplc,
 //	            max_samples
 //	[switch]    idn
+//	[spec.converter] range_gain_pct, linearity_pct,
+//	            [[spec.converter.flatness]] ranges, from_hz, to_hz, flatness_pct
+//	[spec.voltmeter] [[spec.voltmeter.accuracy]] range_v, reading_pct, range_pct
+//	[spec.generator] amplitude_pct,
+//	            [[spec.generator.flatness]] from_hz, to_hz, flatness_db
 //
 // Section kinds: "highpass1", "lowpass1" (first order, corner freq_hz),
 // "highpass2", "lowpass2" (second order, natural frequency freq_hz,

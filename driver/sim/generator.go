@@ -136,7 +136,7 @@ func (b *Bench) notePeakLocked() {
 		return
 	}
 	gc := &b.cfg.Generator
-	ac := b.gen.dutVrms(gc.SourceOhm, b.cfg.DUT.InputOhm)
+	ac := b.gen.dutVrms(gc.SourceOhm, b.cfg.DUT.InputOhm) * b.sys.GeneratorGain(b.gen.freqHz)
 	dc := b.gen.atDUT(b.gen.offsetV, gc.SourceOhm, b.cfg.DUT.InputOhm)
 	if v := math.Sqrt(ac*ac + dc*dc); v > b.peakVrms {
 		b.peakVrms = v

@@ -111,7 +111,7 @@ func (m *meter) fetch(ctx context.Context) ([]float64, error) {
 			if b.wallAt(lo).Before(b.overUntil) {
 				v = cc.SaturateFraction * cc.DCFullScaleV
 			} else {
-				v = b.conv.MeanDC(lo, hi)
+				v = b.conv.MeanDC(lo, hi) * b.drift.factor((lo+hi)/2)
 			}
 			if cc.NoiseV > 0 {
 				v += noise(b.rngConv, cc.NoiseV*math.Sqrt(math.Min(1, 1/(2*cc.NoiseBandwidthHz*ms.ta))))
@@ -141,6 +141,9 @@ func (m *meter) rangeReading(v float64) float64 {
 		} else {
 			m.rng = len(m.ranges) - 1
 		}
+	}
+	if m.kind == dcMeter {
+		v = m.b.sys.VoltmeterReading(m.rng, v)
 	}
 	if math.Abs(v) > m.ranges[m.rng]*(1+m.over) {
 		if v < 0 {

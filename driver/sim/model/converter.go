@@ -15,7 +15,23 @@ type ConverterParams struct {
 	SaturateFraction float64 // the DC output saturates at this × DCFullScaleV
 	FloorFraction    float64 // input-referred noise floor, fraction of full scale, adds in power
 	Hold             Hold    // output frozen periodically
+	// InputGain, when set, is the converter's gain error on range rng
+	// for an input at freqHz, as a factor on the reading (range
+	// calibration times flatness; 1 is perfect). It scales the RMS the
+	// mean-square state stands for, not the state, so that a range
+	// change still rescales the output at once. Nil: no error.
+	InputGain func(rng int, freqHz float64) float64
+	// Linearity is the end-point linearity error λ, a fraction of full
+	// scale: the DC output is x + λ·LinearityShape(x) of full scale for a
+	// true fraction x. 0: linear.
+	Linearity float64
 }
+
+// LinearityShape is the shape of the end-point linearity deviation at a
+// fraction x of full scale, 4·x·(1−x): zero at zero and at full scale,
+// largest (1) at half scale. It is the shape profile.LinearityShape
+// documents for the converter profile's linearity_pct.
+func LinearityShape(x float64) float64 { return 4 * x * (1 - x) }
 
 // Converter is the averaging true-RMS converter: its state is the mean
 // square of its input (independent of the range), its DC output
@@ -89,6 +105,13 @@ func (c *Converter) Ranges() int { return len(c.p.Ranges) }
 func (c *Converter) dc(y float64, rng int) float64 {
 	if rng < 0 || rng >= len(c.p.Ranges) {
 		return 0
+	}
+	if c.p.InputGain != nil || c.p.Linearity != 0 {
+		x := math.Sqrt(math.Max(y, 0)) / c.p.Ranges[rng].FullScaleVrms
+		if c.p.InputGain != nil {
+			x *= c.p.InputGain(rng, c.input.FreqHz)
+		}
+		return (x + c.p.Linearity*LinearityShape(x)) * c.p.DCFullScaleV
 	}
 	return math.Sqrt(math.Max(y, 0)) / c.p.Ranges[rng].FullScaleVrms * c.p.DCFullScaleV
 }
