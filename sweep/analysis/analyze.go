@@ -386,15 +386,16 @@ func (a *analysis) endSlope(low bool) *Slope {
 	return makeSlope(a.xs, sel, s, "least squares over the first or last half decade of the sweep")
 }
 
-// ordersAround returns the orders to try for a side with an implied order.
+// ordersAround returns the orders to try for a side with an implied order
+// (up to MaxSideOrder).
 func ordersAround(s *Slope) []int {
 	if s == nil || s.Points < 3 {
 		return []int{1, 2, 3, 4}
 	}
-	n := max(1, min(4, s.Order))
+	n := max(1, min(MaxSideOrder, s.Order))
 	var out []int
 	for o := n - 1; o <= n+1; o++ {
-		if o >= 1 && o <= 4 {
+		if o >= 1 && o <= MaxSideOrder {
 			out = append(out, o)
 		}
 	}

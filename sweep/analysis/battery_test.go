@@ -12,6 +12,7 @@ import (
 	"strings"
 	"sync"
 	"testing"
+	"time"
 
 	"rolloff/sweep/point"
 )
@@ -180,7 +181,11 @@ func batteryJob(d batteryDesign, g batteryGrid, ci int, c batteryCase, sd float6
 			where: fmt.Sprintf("%s %s %d ppd %s ref %s %s", d.Name, grid, g.PPD, fmtNoise(sd), c.RefMode, s.name)})
 	}
 	for seed := 1; seed <= seeds; seed++ {
+		t0 := time.Now()
 		r, err := Analyze(batteryPoints(g, sd, uint64(seed), bo.declared), opts)
+		if el := time.Since(t0); el > 300*time.Millisecond && os.Getenv("ROLLOFF_BATTERY_SLOW") != "" {
+			fmt.Printf("slow: %v %s %d ppd %v\n", el, d.Name, g.PPD, sd)
+		}
 		k := 0
 		for _, s := range sides {
 			if s.want == nil {
@@ -382,7 +387,11 @@ func TestBattery(t *testing.T) {
 		t.Skip("the full battery runs with ROLLOFF_BATTERY=1 (make battery)")
 	}
 	designs := loadBattery(t)
-	all := runBattery(t, designs, batteryOpts{noise: []float64{0, 0.01, 0.05}, seeds: 20, declared: true})
+	noise := []float64{0, 0.01, 0.05}
+	if os.Getenv("ROLLOFF_BATTERY") == "noise-free" {
+		noise = noise[:1] // a quick look while developing
+	}
+	all := runBattery(t, designs, batteryOpts{noise: noise, seeds: 20, declared: true})
 	fmt.Print(batteryTable(summariseBattery(all)))
 	tot := totalBattery(all)
 	fmt.Print(tot)

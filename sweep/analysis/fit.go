@@ -66,7 +66,7 @@ type structure []SectionKind
 func (st structure) nParams() int {
 	n := 0
 	for _, k := range st {
-		n += k.order()
+		n += k.nParams()
 	}
 	return n
 }
@@ -109,7 +109,7 @@ func (e *evaluator) eval(theta []float64) {
 	for _, k := range e.st {
 		p := theta[j]
 		q := 0.0
-		if k.order() == 2 {
+		if k.nParams() == 2 {
 			q = theta[j+1]
 		}
 		inv2 := math.Exp(-2 * p)
@@ -118,11 +118,11 @@ func (e *evaluator) eval(theta []float64) {
 			g, dp, dq := sectionDBu(k, e.d.lf[i]-p, e.d.f2[i]*inv2, iq2)
 			e.shape[i] += g
 			e.dshape[i*np+j] = dp
-			if k.order() == 2 {
+			if k.nParams() == 2 {
 				e.dshape[i*np+j+1] = dq
 			}
 		}
-		j += k.order()
+		j += k.nParams()
 	}
 	var sw, swr float64
 	mean := make([]float64, np)
@@ -286,14 +286,14 @@ func (e *evaluator) model(theta []float64, d *fitData) (Model, bool) {
 		if s.FHz < d.loHz/30 || s.FHz > d.hiHz*30 || math.IsNaN(s.FHz) {
 			return m, false
 		}
-		if k.order() == 2 {
+		if k.nParams() == 2 {
 			s.Q = math.Exp(theta[j+1])
 			if !(s.Q >= 0.05 && s.Q <= 200) {
 				return m, false
 			}
 		}
 		m.Sections = append(m.Sections, s)
-		j += k.order()
+		j += k.nParams()
 	}
 	// Canonical order: high-pass sections first, then by frequency.
 	sort.SliceStable(m.Sections, func(a, b int) bool {
@@ -305,12 +305,6 @@ func (e *evaluator) model(theta []float64, d *fitData) (Model, bool) {
 	})
 	return m, true
 }
-
-// sideStructures are the cascades tried for one side, by order 1…4.
-var (
-	lowSide  = [5]structure{nil, {HighPass1}, {HighPass2}, {HighPass2, HighPass1}, {HighPass2, HighPass2}}
-	highSide = [5]structure{nil, {LowPass1}, {LowPass2}, {LowPass2, LowPass1}, {LowPass2, LowPass2}}
-)
 
 // sideStarts returns starting parameters (ln f0, ln Q…) for a side of the
 // given order around the corner hint fcHz. For the high-pass side the
@@ -328,6 +322,8 @@ func sideStarts(order int, fcHz float64, hp bool) [][]float64 {
 	case 4:
 		// Butterworth-like, Chebyshev-like (low, high Q), Bessel-like.
 		sets = [][]sec{{{1, 0.54}, {1, 1.31}}, {{0.6, 0.78}, {1, 3.5}}, {{1.4, 0.52}, {1.6, 0.81}}}
+	default:
+		return patternStarts(order, fcHz, hp)
 	}
 	out := make([][]float64, 0, len(sets))
 	for _, set := range sets {
@@ -353,17 +349,26 @@ type fitHints struct {
 	lowHz, highHz         float64
 }
 
+// bicOf is the Bayesian information criterion of a fit to d:
+// n·ln(χ²/n) + k·ln n. A residual below 1/20 of the assumed noise is
+// treated as 1/20 of it, so that extra sections cannot win by fitting
+// rounding.
+func bicOf(d *fitData, f fitted) float64 {
+	const minMeanChi2 = 1.0 / 400
+	n := float64(len(d.y))
+	k := f.st.nParams() + 1
+	return n*math.Log(math.Max(f.chi2/n, minMeanChi2)) + float64(k)*math.Log(n)
+}
+
 // fitModels fits every combination of the hinted low-side and high-side
-// cascades and returns them sorted by BIC (best first).
+// cascades and returns them sorted by BIC (best first). With one pole on
+// each side the second-order band-pass (any Q) is tried as well.
 func fitModels(d *fitData, h fitHints) []fitted {
 	n := float64(len(d.y))
 	var out []fitted
-	// A residual below 1/20 of the assumed noise is treated as 1/20 of it
-	// in the BIC, so that extra sections cannot win by fitting rounding.
-	const minMeanChi2 = 1.0 / 400
 	for _, lo := range h.lowOrders {
 		for _, hi := range h.highOrders {
-			st := append(append(structure{}, lowSide[lo]...), highSide[hi]...)
+			st := append(sideStructure(lo, true), sideStructure(hi, false)...)
 			k := st.nParams() + 1
 			if float64(k) >= n-2 {
 				continue
@@ -382,12 +387,19 @@ func fitModels(d *fitData, h fitHints) []fitted {
 				}
 				starts[i] = v
 			}
-			f, ok := fitOne(d, st, starts)
-			if !ok {
-				continue
+			if f, ok := fitOne(d, st, starts); ok {
+				f.bic = bicOf(d, f)
+				out = append(out, f)
 			}
-			f.bic = n*math.Log(math.Max(f.chi2/n, minMeanChi2)) + float64(k)*math.Log(n)
-			out = append(out, f)
+			if lo == 1 && hi == 1 && h.lowHz > 0 && h.highHz > h.lowHz {
+				f0 := math.Sqrt(h.lowHz * h.highHz)
+				q := f0 / (h.highHz - h.lowHz)
+				bs := [][]float64{{math.Log(f0), math.Log(q)}, {math.Log(f0), math.Log(math.Max(q, 0.5) * 2)}}
+				if f, ok := fitOne(d, structure{BandPass2}, bs); ok {
+					f.bic = bicOf(d, f)
+					out = append(out, f)
+				}
+			}
 		}
 	}
 	sort.SliceStable(out, func(a, b int) bool { return out[a].bic < out[b].bic })

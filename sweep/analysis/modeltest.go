@@ -52,6 +52,7 @@ func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope)
 		h.highHz = hint
 	}
 	cands := fitModels(d, h)
+	cands = augment(d, cands, h, a.o.ModelFactor, func(f fitted) float64 { return bicOf(d, f) })
 	if len(cands) == 0 {
 		return nil
 	}

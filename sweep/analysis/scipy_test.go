@@ -226,7 +226,7 @@ func thetaOf(t *testing.T, m Model, st structure) []float64 {
 			if !used[i] && s.Kind == k {
 				used[i], found = true, true
 				th = append(th, math.Log(s.FHz))
-				if k.order() == 2 {
+				if k.nParams() == 2 {
 					th = append(th, math.Log(s.Q))
 				}
 				break
