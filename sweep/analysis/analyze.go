@@ -55,6 +55,9 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 	if err := a.checkReference(); err != nil {
 		return nil, err
 	}
+	if floor, declared, _ := a.noiseOf(); !declared {
+		a.noiseDB = floor
+	}
 
 	// Interpolation estimator.
 	ie := a.estimate(it, xs, false)
@@ -177,6 +180,8 @@ type analysis struct {
 	inc        []Sample
 	xs, ys, us []float64 // log10 f, dB, standard uncertainty dB
 	x0, x1     float64
+	noiseDB    float64     // noise estimated from the data when undeclared
+	cov        *covariance // of the accepted model's parameters
 }
 
 func (a *analysis) checkReference() error {
@@ -249,6 +254,14 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 			highX = &v
 		}
 	}
+	refXs := []float64{e.xRef}
+	if a.o.RefMode == RefBand {
+		xa, xb := clamp(log10(a.o.BandLoHz), a.x0, a.x1), clamp(log10(a.o.BandHiHz), a.x0, a.x1)
+		refXs = refXs[:0]
+		for i := 0; i <= 16; i++ {
+			refXs = append(refXs, xa+(xb-xa)*float64(i)/16)
+		}
+	}
 	corner := func(x float64) (hz, uHz *float64) {
 		f := math.Pow(10, x)
 		var slope float64
@@ -257,12 +270,25 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 		} else {
 			slope = a.localSlope(x)
 		}
-		uc := linearAt(a.xs, a.us, x)
-		udb := math.Hypot(uc, e.refU)
 		perLn := math.Abs(slope) / math.Ln10 // dB per neper of frequency
+		uc := linearAt(a.xs, a.us, x)
+		var uRel float64 // standard uncertainty of ln fc
+		if m, ok := c.(*Model); model && ok && a.cov != nil {
+			// The fit's averaging: the covariance propagated to the
+			// corner, plus the points' Type B parts (not averaged).
+			ua := linearAt(a.xs, a.uas(), x)
+			ub := math.Sqrt(math.Max(uc*uc-ua*ua, 0) + math.Max(e.refU*e.refU-ua*ua, 0))
+			uRel = math.Hypot(a.cov.cornerU(m, x, refXs), ub/perLn)
+		} else {
+			udb := math.Hypot(math.Hypot(uc, a.noiseDB), math.Hypot(e.refU, a.noiseDB))
+			uRel = udb / perLn
+			if !model {
+				uRel = math.Hypot(uRel, methodU(a.xs, a.ys, x, level))
+			}
+		}
 		var u *float64
-		if perLn > 0 {
-			u = ptr(CoverageFactor * udb / perLn * f)
+		if perLn > 0 && !math.IsNaN(uRel) {
+			u = ptr(CoverageFactor * uRel * f)
 		}
 		return ptr(f), u
 	}
@@ -273,6 +299,15 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 		e.HighHz, e.HighUHz = corner(*highX)
 	}
 	return e
+}
+
+// uas returns the points' Type A uncertainties, dB.
+func (a *analysis) uas() []float64 {
+	out := make([]float64, len(a.inc))
+	for i, s := range a.inc {
+		out[i] = s.UADB
+	}
+	return out
 }
 
 // localSlope is the least-squares slope (dB/decade) of the included points

@@ -266,7 +266,7 @@ func summariseBattery(all []*batteryCorner) []*batteryRow {
 		r.total += len(c.errs)
 	}
 	for k, e := range errsOf {
-		rows[k].medErr = median(e)
+		rows[k].medErr = medianOf(e)
 	}
 	sort.Strings(keys)
 	out := make([]*batteryRow, len(keys))
@@ -276,16 +276,10 @@ func summariseBattery(all []*batteryCorner) []*batteryRow {
 	return out
 }
 
-func median(v []float64) float64 {
-	if len(v) == 0 {
-		return math.NaN()
-	}
+func medianOf(v []float64) float64 {
 	s := append([]float64(nil), v...)
 	sort.Float64s(s)
-	if len(s)%2 == 1 {
-		return s[len(s)/2]
-	}
-	return (s[len(s)/2-1] + s[len(s)/2]) / 2
+	return median(s)
 }
 
 func batteryTable(rows []*batteryRow) string {
@@ -303,7 +297,7 @@ func batteryTable(rows []*batteryRow) string {
 				mx = math.Max(mx, v)
 			}
 		}
-		fmt.Fprintf(&b, "%-12s %4d %-10s %4d  %26s  %6.2f / %7.2f, %5.1f %%\n", r.family, r.ppd, fmtNoise(r.noiseDB), r.n, "", median(r.ratios), mx, 100*float64(r.covered)/float64(max(r.total, 1)))
+		fmt.Fprintf(&b, "%-12s %4d %-10s %4d  %26s  %6.2f / %7.2f, %5.1f %%\n", r.family, r.ppd, fmtNoise(r.noiseDB), r.n, "", medianOf(r.ratios), mx, 100*float64(r.covered)/float64(max(r.total, 1)))
 	}
 	return b.String()
 }

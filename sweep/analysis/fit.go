@@ -19,7 +19,8 @@ type fitData struct {
 // newFitData bins the included samples into at most maxPoints bins equally
 // spaced in log frequency (one sample per bin when there are fewer samples
 // than bins). A bin's y is the mean gain of its samples and its s the rms
-// of their Type A uncertainties (raised to floorDB) divided by √m.
+// of their Type A uncertainties (raised to floorDB, the noise assumed for a
+// point without its own; see ModelTest) divided by √m.
 func newFitData(s []Sample, floorDB float64, maxPoints int) *fitData {
 	d := &fitData{loHz: s[0].FreqHz, hiHz: s[len(s)-1].FreqHz}
 	add := func(x, y, ua2 float64, m int) {

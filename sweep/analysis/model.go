@@ -191,6 +191,15 @@ func (m *Model) Describe() string {
 	return strings.Join(parts, " × ")
 }
 
+// describeSections lists the model section by section, in words.
+func describeSections(m Model) []string {
+	out := make([]string, len(m.Sections))
+	for i, s := range m.Sections {
+		out[i] = s.Describe()
+	}
+	return out
+}
+
 // Order returns the number of poles on the high-pass (low-frequency) side
 // and on the low-pass (high-frequency) side.
 func (m *Model) Order() (lowSide, highSide int) {

@@ -135,13 +135,14 @@ type step struct {
 	x, dB float64 // centre (log10 f) and the level change across it
 }
 
-// dips returns the local minima of ys over xs, refined by a parabola
-// through the three points (log10 f), deepest first, at most maxN.
-func dips(xs, ys []float64, maxN int) []float64 {
+// dips returns the local minima of ys over xs deeper than three standard
+// deviations sd of the points, refined by a parabola through the three
+// points (log10 f), deepest first, at most maxN.
+func dips(xs, ys, sd []float64, maxN int) []float64 {
 	type dip struct{ x, depth float64 }
 	var ds []dip
 	for i := 1; i+1 < len(ys); i++ {
-		if ys[i] < ys[i-1] && ys[i] < ys[i+1] {
+		if ys[i] < ys[i-1]-3*sd[i] && ys[i] < ys[i+1]-3*sd[i] {
 			ds = append(ds, dip{parabolaX(xs[i-1:i+2], ys[i-1:i+2]), math.Min(ys[i-1], ys[i+1]) - ys[i]})
 		}
 	}
@@ -233,7 +234,7 @@ func thetaOfModel(f fitted) []float64 {
 // best is not adequate.
 func augment(d *fitData, cands []fitted, h fitHints, factor float64, bic func(fitted) float64) []fitted {
 	xs := d.xs
-	dataDips := dips(xs, d.y, 4)
+	dataDips := dips(xs, d.y, d.s, 4)
 	steps := slopeSteps(xs, d.y)
 	lx := func(x float64) float64 { return x * math.Ln10 }
 	for round := 0; round < 3 && len(cands) > 0; round++ {
@@ -245,7 +246,7 @@ func augment(d *fitData, cands []fitted, h fitHints, factor float64, bic func(fi
 		for i := range xs {
 			res[i] = d.y[i] - best.model.atLog(xs[i])
 		}
-		dipX := append(append([]float64{}, dataDips...), dips(xs, res, 2)...)
+		dipX := append(append([]float64{}, dataDips...), dips(xs, res, d.s, 2)...)
 		var trials []fitted
 		bases := cands[:min(2, len(cands))]
 		for _, b := range bases {
