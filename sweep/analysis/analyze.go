@@ -77,6 +77,11 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 		if mr != nil {
 			r.Model = mr
 			model = &mr.Model
+			if mr.Accepted && !mr.NoiseDeclared {
+				// The adequate model's residual with its degrees of
+				// freedom is the better estimate of undeclared noise.
+				a.noiseDB = mr.NoiseFitDB
+			}
 			grid := denseGrid(xs, 0.005)
 			me := a.estimate(model, grid, true)
 			r.Estimators.Model = &me.Estimate
@@ -241,6 +246,9 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 	}
 	level := e.ReferenceGainDB + a.o.LevelDB
 	xc := crossings(c, grid, level)
+	if !model {
+		xc = a.supported(xc, level)
+	}
 	e.Crossings = []Crossing{}
 	var lowX, highX *float64
 	for _, x := range xc {
@@ -299,6 +307,43 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 		e.HighHz, e.HighUHz = corner(*highX)
 	}
 	return e
+}
+
+// supported drops the pairs of consecutive crossings of the interpolant
+// that the data do not support (a model's crossings are as good as the
+// model, which passed its residual test): an excursion through the level (a dip below it or a bump above
+// it) is kept only when some point between the two crossings lies beyond
+// the level by more than CoverageFactor standard deviations of its noise.
+// One noisy sample dipping through the level, or a narrow feature of a
+// model between two samples, makes no corner.
+func (a *analysis) supported(xc []float64, level float64) []float64 {
+	if len(xc) < 2 {
+		return xc
+	}
+	out := make([]float64, 0, len(xc))
+	for i := 0; i < len(xc); i++ {
+		if i+1 < len(xc) && !a.beyondLevel(xc[i], xc[i+1], level) {
+			i++ // drop the pair
+			continue
+		}
+		out = append(out, xc[i])
+	}
+	return out
+}
+
+// beyondLevel says whether a point strictly between xa and xb lies beyond
+// level by more than CoverageFactor times its noise.
+func (a *analysis) beyondLevel(xa, xb, level float64) bool {
+	for i, x := range a.xs {
+		if x <= xa || x >= xb {
+			continue
+		}
+		u := math.Hypot(a.inc[i].UADB, a.noiseDB)
+		if math.Abs(a.ys[i]-level) > CoverageFactor*u {
+			return true
+		}
+	}
+	return false
 }
 
 // uas returns the points' Type A uncertainties, dB.

@@ -67,7 +67,17 @@ func (a *analysis) search(d *fitData, h fitHints, floorDB float64) []fitted {
 		coarse = newFitData(a.inc, floorDB, searchPoints)
 	}
 	cands := fitModels(coarse, h)
-	cands = augment(coarse, cands, h, a.o.ModelFactor, func(f fitted) float64 { return bicOf(coarse, f) })
+	bic := func(f fitted) float64 { return bicOf(coarse, f) }
+	cands = augment(coarse, cands, h, a.o.ModelFactor, bic)
+	if len(cands) > 0 && (cands[0].st.hasZeros() || !residualStats(coarse, &cands[0].model).ok(coarse, a.o.ModelFactor)) {
+		// The slopes may understate the order (a roll-off cut short by
+		// the sweep's end), and zeros may stand in for missing poles:
+		// try steeper all-pole sides too.
+		h2 := h
+		h2.lowOrders, h2.highOrders = steeper(h.lowOrders), steeper(h.highOrders)
+		cands = append(cands, fitModels(coarse, h2)...)
+		sort.SliceStable(cands, func(i, j int) bool { return cands[i].bic < cands[j].bic })
+	}
 	if coarse == d {
 		return cands
 	}
@@ -147,11 +157,40 @@ func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope)
 	return mr
 }
 
+// steeper returns the orders two to four above the highest of orders (none
+// when that is 0), up to MaxSideOrder.
+func steeper(orders []int) []int {
+	top := 0
+	for _, o := range orders {
+		top = max(top, o)
+	}
+	if top == 0 {
+		return []int{0}
+	}
+	var out []int
+	for o := top + 2; o <= min(top+4, MaxSideOrder); o += 2 {
+		out = append(out, o)
+	}
+	if len(out) == 0 {
+		return []int{top}
+	}
+	return out
+}
+
 func nanToZero(v float64) float64 {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return 0
 	}
 	return v
+}
+
+func (st structure) hasZeros() bool {
+	for _, k := range st {
+		if k == Zero1 || k == ZeroPairJ {
+			return true
+		}
+	}
+	return false
 }
 
 func (st structure) String() string {

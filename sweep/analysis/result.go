@@ -140,10 +140,10 @@ type ModelResult struct {
 	NoiseDiffDB   float64 `json:"noise_diff_db"`
 	NoiseFitDB    float64 `json:"noise_fit_db"`
 	// Sections lists the model section by section, in words.
-	Sections []string `json:"sections_described"`
-	Lag1       float64 `json:"lag1"`
-	BIC        float64 `json:"bic"`
-	FitPoints  int     `json:"fit_points"`
+	Sections  []string `json:"sections_described"`
+	Lag1      float64  `json:"lag1"`
+	BIC       float64  `json:"bic"`
+	FitPoints int      `json:"fit_points"`
 	// Accepted says whether the model's residual is at the noise level, so
 	// that its corners are reported; Reason explains the decision.
 	Accepted   bool        `json:"accepted"`
