@@ -387,6 +387,11 @@ func TestBattery(t *testing.T) {
 	}
 	all := runBattery(t, designs, batteryOpts{noise: noise, seeds: 20, declared: true})
 	fmt.Print(batteryTable(summariseBattery(all)))
+	for _, c := range all {
+		if c.noiseDB == 0 && (c.ppd >= 10 && math.Abs(c.errs[0]) > 5e-4 || c.ppd < 10 && math.Abs(c.errs[0]) > 5e-3) {
+			fmt.Printf("noise-free miss: %s: %.3g %%\n", c.where, 100*c.errs[0])
+		}
+	}
 	tot := totalBattery(all)
 	fmt.Print(tot)
 	if tot.free10Bad > 0 || tot.free5Bad > 0 || tot.noisyBad > 0 {

@@ -85,6 +85,7 @@ type evaluator struct {
 	jac    []float64 // n×np
 	gain   float64
 	last   []float64
+	lo, hi []float64 // bounds of the parameters, nil for none
 }
 
 func newEvaluator(d *fitData, st structure) *evaluator {
@@ -92,6 +93,20 @@ func newEvaluator(d *fitData, st structure) *evaluator {
 	np := st.nParams()
 	return &evaluator{d: d, st: st, np: np, shape: make([]float64, n), dshape: make([]float64, n*np),
 		r: make([]float64, n), jac: make([]float64, n*np)}
+}
+
+// boundQ keeps every Q the fit steps to just inside the range where a
+// model is valid (see model).
+func (e *evaluator) boundQ() {
+	e.lo, e.hi = make([]float64, e.np), make([]float64, e.np)
+	j := 0
+	for _, k := range e.st {
+		e.lo[j], e.hi[j] = math.Inf(-1), math.Inf(1)
+		if k.nParams() == 2 {
+			e.lo[j+1], e.hi[j+1] = math.Log(0.0501), math.Log(199.9)
+		}
+		j += k.nParams()
+	}
 }
 
 func (e *evaluator) eval(theta []float64) {
@@ -211,6 +226,9 @@ func (e *evaluator) lm(x0 []float64) (x []float64, chi2 float64) {
 				d := delta.AtVec(c)
 				// Keep a step within a decade-and-a-half in f0 or Q.
 				trial[c] = x[c] + math.Max(-3.5, math.Min(3.5, d))
+				if e.lo != nil {
+					trial[c] = clamp(trial[c], e.lo[c], e.hi[c])
+				}
 			}
 			f := e.chi2(trial)
 			if f < chi2 {
@@ -258,7 +276,18 @@ type fitted struct {
 // fitOne minimises χ² for st from each start and returns the best valid
 // fit; ok is false when no start gave a valid model.
 func fitOne(d *fitData, st structure, starts [][]float64) (best fitted, ok bool) {
+	return fitWith(newEvaluator(d, st), d, st, starts)
+}
+
+// fitOneQ is fitOne with every Q kept inside the valid range during the
+// steps (for cascades with zeros, whose fits otherwise wander off).
+func fitOneQ(d *fitData, st structure, starts [][]float64) (best fitted, ok bool) {
 	e := newEvaluator(d, st)
+	e.boundQ()
+	return fitWith(e, d, st, starts)
+}
+
+func fitWith(e *evaluator, d *fitData, st structure, starts [][]float64) (best fitted, ok bool) {
 	best.chi2 = math.Inf(1)
 	for _, x0 := range starts {
 		x, f := e.lm(x0)

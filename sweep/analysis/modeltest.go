@@ -71,7 +71,7 @@ func (a *analysis) search(d *fitData, h fitHints, floorDB float64) []fitted {
 	cands = augment(coarse, cands, h, a.o.ModelFactor, bic)
 	if len(cands) > 0 && (cands[0].st.hasZeros() || !residualStats(coarse, &cands[0].model).ok(coarse, a.o.ModelFactor)) {
 		// The slopes may understate the order (a roll-off cut short by
-		// the sweep's end), and zeros may stand in for missing poles:
+		// the sweep's end), and zero pairs may stand in for missing poles:
 		// try steeper all-pole sides too.
 		h2 := h
 		h2.lowOrders, h2.highOrders = steeper(h.lowOrders), steeper(h.highOrders)
@@ -186,7 +186,7 @@ func nanToZero(v float64) float64 {
 
 func (st structure) hasZeros() bool {
 	for _, k := range st {
-		if k == Zero1 || k == ZeroPairJ {
+		if k == ZeroPairJ {
 			return true
 		}
 	}

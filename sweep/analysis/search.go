@@ -260,7 +260,7 @@ func augment(d *fitData, cands []fitted, h fitHints, factor float64, bic func(fi
 				for _, s := range starts {
 					ss = append(ss, append(append([]float64{}, th...), s...))
 				}
-				if f, ok := fitOne(d, st, ss); ok {
+				if f, ok := fitOneQ(d, st, ss); ok {
 					f.bic = bic(f)
 					trials = append(trials, f)
 				}
@@ -312,35 +312,79 @@ func stopBands(d *fitData, dipsX []float64, h fitHints, bic func(fitted) float64
 				zs = append(zs, x*math.Ln10)
 			}
 		}
-		m := len(zs)
-		if m == 0 {
+		if len(zs) == 0 {
 			continue
 		}
-		for _, n := range []int{2 * m, 2*m + 1} {
-			if n > MaxSideOrder {
-				continue
-			}
-			st := sideStructure(n, false)
-			for range zs {
-				st = append(st, ZeroPairJ)
-			}
-			if st.nParams()+4 >= len(d.y) {
-				continue
-			}
-			if hp && n%2 == 1 {
-				// A high-pass with stop-band zeros is a low-pass cascade
-				// whose zeros lie below its poles, times s/(s+ω) when odd.
-				st[n/2] = HighPass1
-			}
-			var starts [][]float64
-			for _, s := range patternStarts(n, fc, hp) {
-				starts = append(starts, append(s, zs...))
-			}
-			if f, ok := fitOne(d, st, starts); ok {
-				f.bic = bic(f)
-				out = append(out, f)
+		// The zero nearest the passband often makes no dip of its own
+		// (the response is still falling there): try one more, midway
+		// (in log f) between the corner and the nearest dip.
+		near := zs[0]
+		for _, z := range zs {
+			if math.Abs(z-math.Log(fc)) < math.Abs(near-math.Log(fc)) {
+				near = z
 			}
 		}
+		for _, zz := range [][]float64{zs, append(append([]float64{}, zs...), (near+math.Log(fc))/2)} {
+			out = append(out, stopBandFits(d, zz, fc, hp, bic)...)
+		}
+	}
+	return out
+}
+
+// stopBandFits fits all-pole sides of 2m and 2m+1 poles with the m zero
+// pairs zs (ln f) around the corner fcHz.
+func stopBandFits(d *fitData, zs []float64, fc float64, hp bool, bic func(fitted) float64) []fitted {
+	var out []fitted
+	m := len(zs)
+	for _, n := range []int{2 * m, 2*m + 1} {
+		if n > MaxSideOrder {
+			continue
+		}
+		st := sideStructure(n, false)
+		for range zs {
+			st = append(st, ZeroPairJ)
+		}
+		if st.nParams()+4 >= len(d.y) {
+			continue
+		}
+		if hp && n%2 == 1 {
+			// A high-pass with stop-band zeros is a low-pass cascade
+			// whose zeros lie below its poles, times s/(s+ω) when odd.
+			st[n/2] = HighPass1
+		}
+		starts := polesWithZeros(d, st[:len(st)-m], zs, patternStarts(n, fc, hp))
+		if f, ok := fitOneQ(d, st, starts); ok {
+			f.bic = bic(f)
+			out = append(out, f)
+		}
+	}
+	return out
+}
+
+// polesWithZeros returns full starts (poles, then the zeros zs, ln f) for
+// a cascade of the all-pole part poles and len(zs) zero pairs: the poles
+// are first fitted from each pole start with the zeros held at zs (to the
+// data less the zeros' gain), which keeps the first steps from moving the
+// zeros away from the dips that located them.
+func polesWithZeros(d *fitData, poles structure, zs []float64, poleStarts [][]float64) [][]float64 {
+	held := *d
+	held.y = make([]float64, len(d.y))
+	for i := range d.y {
+		held.y[i] = d.y[i]
+		for _, z := range zs {
+			g, _, _ := sectionDB(ZeroPairJ, d.lf[i], z, 0)
+			held.y[i] -= g
+		}
+	}
+	e := newEvaluator(&held, poles)
+	e.boundQ()
+	var out [][]float64
+	for _, s := range poleStarts {
+		x, f := e.lm(s)
+		if math.IsInf(f, 0) || math.IsNaN(f) {
+			x = s
+		}
+		out = append(out, append(append([]float64{}, x...), zs...))
 	}
 	return out
 }
