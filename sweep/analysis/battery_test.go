@@ -401,3 +401,67 @@ func TestBattery(t *testing.T) {
 		t.Errorf("k = 2 coverage %.1f %%: want 90..98 %%", 100*cov)
 	}
 }
+
+// batteryOpen are the designs whose noise-free corners on the regular
+// 10-points-per-decade grid still miss the 0.05 % target, with the error
+// reached (relative); the fast subset fails if they get worse, and says
+// when one meets the target (then remove it here). make battery checks
+// every design against the target itself.
+var batteryOpen = map[string]float64{
+	"cheby2_lp6":        0.01,
+	"cheby2_lp8":        0.02,
+	"ellip_lp7":         0.07,
+	"bandstop_ellip":    0.10,
+	"anti_alias_ellip9": 0.02,
+}
+
+// TestBatteryFast is the quick part of the reference battery run by
+// go test: every design on its regular 10-points-per-decade grid,
+// noise-free (each corner within 0.05 % of SciPy's, but for
+// batteryOpen) and with 0.05 dB of declared noise, 10 seeds (the median
+// over the corners of rms error / information limit at most 1.5, and the
+// k = 2 coverage at least 88 %; make battery checks every corner).
+func TestBatteryFast(t *testing.T) {
+	designs := loadBattery(t)
+	regular10 := func(d batteryDesign, g batteryGrid) bool { return g.PPD == 10 && !g.Irregular }
+	free := runBattery(t, designs, batteryOpts{noise: []float64{0}, filter: regular10})
+	for _, c := range free {
+		e := math.Abs(c.errs[0])
+		name := strings.Fields(c.where)[0]
+		if ceil, open := batteryOpen[name]; open {
+			if e > ceil {
+				t.Errorf("%s: error %.3g %%, worse than the %.3g %% reached", c.where, 100*e, 100*ceil)
+			} else if e <= 5e-4 {
+				t.Logf("%s: error %.3g %% now meets the target", c.where, 100*e)
+			}
+			continue
+		}
+		if e > 5e-4 {
+			t.Errorf("%s: error %.3g %%: want within 0.05 %%", c.where, 100*e)
+		}
+	}
+	noisy := runBattery(t, designs, batteryOpts{noise: []float64{0.05}, seeds: 10, declared: true, filter: regular10})
+	var ratios []float64
+	covered, total := 0, 0
+	for _, c := range noisy {
+		covered += c.covered
+		total += len(c.errs)
+		if math.IsNaN(c.limit) {
+			continue
+		}
+		var ss float64
+		for _, e := range c.errs {
+			ss += e * e
+		}
+		ratios = append(ratios, math.Sqrt(ss/float64(len(c.errs)))/c.limit)
+	}
+	med := medianOf(ratios)
+	cov := float64(covered) / float64(total)
+	t.Logf("0.05 dB, 10 ppd: median rms error / information limit %.2f over %d corners; k = 2 coverage %.1f %% of %d", med, len(ratios), 100*cov, total)
+	if med > 1.5 {
+		t.Errorf("median rms error / information limit %.2f: want at most 1.5", med)
+	}
+	if cov < 0.88 {
+		t.Errorf("k = 2 coverage %.1f %%: want at least 88 %%", 100*cov)
+	}
+}
