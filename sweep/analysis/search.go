@@ -123,14 +123,7 @@ func (a adequacy) ok(d *fitData, factor float64) bool {
 	return a.redChi <= factor && (a.lag1 <= math.Max(0.5, 3/math.Sqrt(n)) || a.redChi <= 1)
 }
 
-// features are the places in the data that suggest sections beyond an
-// all-pole cascade: dips (zeros on the jω axis) and slope extrema with the
-// level step across them (shelves).
-type features struct {
-	dipsX []float64 // log10 f of local minima
-	steps []step
-}
-
+// step is a level change across a slope extremum (a shelf's transition).
 type step struct {
 	x, dB float64 // centre (log10 f) and the level change across it
 }
