@@ -5,13 +5,16 @@
 #                      summary line of what it observed
 #   make fuzz          every fuzz target for FUZZTIME each (default 10s)
 #   make lint          gofmt -l, go vet and, when installed, staticcheck
+#   make battery       the analysis' reference battery (testdata/battery):
+#                      every design, density, grid and noise level; prints
+#                      the table and fails when a target is missed
 
 SHELL := /bin/bash
 GO ?= go
 FUZZTIME ?= 10s
 STATICCHECK ?= $(shell $(GO) env GOPATH)/bin/staticcheck
 
-.PHONY: test reliability fuzz lint
+.PHONY: test reliability fuzz lint battery
 
 test:
 	$(GO) test ./...
@@ -28,6 +31,9 @@ reliability:
 
 fuzz:
 	bash .ci/fuzz $(FUZZTIME)
+
+battery:
+	ROLLOFF_BATTERY=1 $(GO) test ./sweep/analysis/ -run '^TestBattery$$' -count=1 -timeout 60m
 
 lint:
 	@files=$$(gofmt -l .); \

@@ -215,13 +215,15 @@ func TestRippleCrossings(t *testing.T) {
 }
 
 // TestNotch: a notch in the passband makes extra crossings; the passband
-// around the reference is chosen.
+// around the reference is chosen, and the model (a second-order low-pass
+// times a zero pair on the jω axis at the same frequency: the handbook
+// notch) represents it, so its edge is exact.
 func TestNotch(t *testing.T) {
 	notch := func(f float64) float64 {
 		u := f / 3000
 		// second-order notch |H|² = (1−u²)² / ((1−u²)² + (u/Q)²), Q = 2
 		a := (1 - u*u) * (1 - u*u)
-		return 10*math.Log10((a+1e-12)/(a+u*u/4)) + butterworthDB(f, 50000, 2)
+		return 10*math.Log10(a/(a+u*u/4)) + butterworthDB(f, 50000, 2)
 	}
 	r, err := Analyze(synth(notch, 10, 1e6, 20), Options{RefHz: 100})
 	if err != nil {
@@ -230,8 +232,21 @@ func TestNotch(t *testing.T) {
 	if len(r.Crossings) < 3 || r.HighHz == nil || *r.HighHz > 3000 {
 		t.Fatalf("crossings %v, high %v: want the notch's lower edge", r.Crossings, deref(r.HighHz))
 	}
-	if r.CornerSource != "interpolation" {
-		t.Errorf("a notch is no cascade of the standard sections, yet the model was used: %+v", r.Model)
+	if r.CornerSource != "model" {
+		t.Fatalf("the notch is a standard section, yet the model was not used: %+v", r.Model)
+	}
+	ref := notch(100)
+	f := func(x float64) float64 { return notch(math.Pow(10, x)) - ref - HalfPowerDB }
+	want := math.Pow(10, brent(f, 2, math.Log10(2999), f(2), f(math.Log10(2999))))
+	if math.Abs(*r.HighHz/want-1) > 1e-6 {
+		t.Errorf("notch edge %v Hz, want %v Hz", *r.HighHz, want)
+	}
+	var zero bool
+	for _, s := range r.Fitted().Sections {
+		zero = zero || s.Kind == ZeroPairJ && math.Abs(s.FHz/3000-1) < 1e-6
+	}
+	if !zero {
+		t.Errorf("model %s: want a zero pair at 3 kHz", r.Model.Description)
 	}
 }
 
@@ -326,15 +341,41 @@ func TestOptionErrors(t *testing.T) {
 	}
 }
 
-// TestNoStructureTest: data a cascade cannot represent (a notch is tested
-// above; here a shelf) give a model whose residual shows structure, so the
-// interpolation is used.
-func TestShelfUsesInterpolation(t *testing.T) {
+// TestShelf: a shelf (a real pole–zero pair) is a standard section: the
+// model finds its zero and pole.
+func TestShelf(t *testing.T) {
 	shelf := func(f float64) float64 {
 		u := f / 1000
 		return 10*math.Log10((1+u*u*10)/(1+u*u)) + butterworthDB(f, 80000, 2)
 	}
 	r, err := Analyze(synth(shelf, 10, 1e6, 10), Options{RefHz: 100})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Model == nil || !r.Model.Accepted || r.CornerSource != "model" {
+		t.Fatalf("model %+v source %s", r.Model, r.CornerSource)
+	}
+	var zero, pole bool
+	for _, s := range r.Fitted().Sections {
+		zero = zero || s.Kind == Zero1 && math.Abs(s.FHz/(1000/math.Sqrt(10))-1) < 1e-6
+		pole = pole || s.Kind == LowPass1 && math.Abs(s.FHz/1000-1) < 1e-6
+	}
+	if !zero || !pole {
+		t.Errorf("model %s: want a real zero at 316 Hz and a pole at 1 kHz", r.Model.Description)
+	}
+}
+
+// TestNoStructureTest: data the sections cannot represent (a peaking
+// equalizer: complex zeros off the jω axis, |H|² = ((1−u²)² + (u·g/Q)²) /
+// ((1−u²)² + (u/Q)²), handbook form) give a model whose residual shows
+// structure, so the interpolation is used.
+func TestNoStructureTest(t *testing.T) {
+	bell := func(f float64) float64 {
+		u := f / 2000
+		a := (1 - u*u) * (1 - u*u)
+		return 10*math.Log10((a+u*u*9/4)/(a+u*u/4)) + butterworthDB(f, 80000, 2)
+	}
+	r, err := Analyze(synth(bell, 10, 1e6, 10), Options{RefHz: 100})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -55,6 +55,9 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 	if err := a.checkReference(); err != nil {
 		return nil, err
 	}
+	if floor, declared, _ := a.noiseOf(); !declared {
+		a.noiseDB = floor
+	}
 
 	// Interpolation estimator.
 	ie := a.estimate(it, xs, false)
@@ -74,6 +77,11 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 		if mr != nil {
 			r.Model = mr
 			model = &mr.Model
+			if mr.Accepted && !mr.NoiseDeclared {
+				// The adequate model's residual with its degrees of
+				// freedom is the better estimate of undeclared noise.
+				a.noiseDB = mr.NoiseFitDB
+			}
 			grid := denseGrid(xs, 0.005)
 			me := a.estimate(model, grid, true)
 			r.Estimators.Model = &me.Estimate
@@ -177,6 +185,8 @@ type analysis struct {
 	inc        []Sample
 	xs, ys, us []float64 // log10 f, dB, standard uncertainty dB
 	x0, x1     float64
+	noiseDB    float64     // noise estimated from the data when undeclared
+	cov        *covariance // of the accepted model's parameters
 }
 
 func (a *analysis) checkReference() error {
@@ -236,6 +246,9 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 	}
 	level := e.ReferenceGainDB + a.o.LevelDB
 	xc := crossings(c, grid, level)
+	if !model {
+		xc = a.supported(xc, level)
+	}
 	e.Crossings = []Crossing{}
 	var lowX, highX *float64
 	for _, x := range xc {
@@ -249,6 +262,14 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 			highX = &v
 		}
 	}
+	refXs := []float64{e.xRef}
+	if a.o.RefMode == RefBand {
+		xa, xb := clamp(log10(a.o.BandLoHz), a.x0, a.x1), clamp(log10(a.o.BandHiHz), a.x0, a.x1)
+		refXs = refXs[:0]
+		for i := 0; i <= 16; i++ {
+			refXs = append(refXs, xa+(xb-xa)*float64(i)/16)
+		}
+	}
 	corner := func(x float64) (hz, uHz *float64) {
 		f := math.Pow(10, x)
 		var slope float64
@@ -257,12 +278,25 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 		} else {
 			slope = a.localSlope(x)
 		}
-		uc := linearAt(a.xs, a.us, x)
-		udb := math.Hypot(uc, e.refU)
 		perLn := math.Abs(slope) / math.Ln10 // dB per neper of frequency
+		uc := linearAt(a.xs, a.us, x)
+		var uRel float64 // standard uncertainty of ln fc
+		if m, ok := c.(*Model); model && ok && a.cov != nil {
+			// The fit's averaging: the covariance propagated to the
+			// corner, plus the points' Type B parts (not averaged).
+			ua := linearAt(a.xs, a.uas(), x)
+			ub := math.Sqrt(math.Max(uc*uc-ua*ua, 0) + math.Max(e.refU*e.refU-ua*ua, 0))
+			uRel = math.Hypot(a.cov.cornerU(m, x, refXs), ub/perLn)
+		} else {
+			udb := math.Hypot(math.Hypot(uc, a.noiseDB), math.Hypot(e.refU, a.noiseDB))
+			uRel = udb / perLn
+			if !model {
+				uRel = math.Hypot(uRel, methodU(a.xs, a.ys, x, level))
+			}
+		}
 		var u *float64
-		if perLn > 0 {
-			u = ptr(CoverageFactor * udb / perLn * f)
+		if perLn > 0 && !math.IsNaN(uRel) {
+			u = ptr(CoverageFactor * uRel * f)
 		}
 		return ptr(f), u
 	}
@@ -273,6 +307,52 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 		e.HighHz, e.HighUHz = corner(*highX)
 	}
 	return e
+}
+
+// supported drops the pairs of consecutive crossings of the interpolant
+// that the data do not support (a model's crossings are as good as the
+// model, which passed its residual test): an excursion through the level (a dip below it or a bump above
+// it) is kept only when some point between the two crossings lies beyond
+// the level by more than CoverageFactor standard deviations of its noise.
+// One noisy sample dipping through the level, or a narrow feature of a
+// model between two samples, makes no corner.
+func (a *analysis) supported(xc []float64, level float64) []float64 {
+	if len(xc) < 2 {
+		return xc
+	}
+	out := make([]float64, 0, len(xc))
+	for i := 0; i < len(xc); i++ {
+		if i+1 < len(xc) && !a.beyondLevel(xc[i], xc[i+1], level) {
+			i++ // drop the pair
+			continue
+		}
+		out = append(out, xc[i])
+	}
+	return out
+}
+
+// beyondLevel says whether a point strictly between xa and xb lies beyond
+// level by more than CoverageFactor times its noise.
+func (a *analysis) beyondLevel(xa, xb, level float64) bool {
+	for i, x := range a.xs {
+		if x <= xa || x >= xb {
+			continue
+		}
+		u := math.Hypot(a.inc[i].UADB, a.noiseDB)
+		if math.Abs(a.ys[i]-level) > CoverageFactor*u {
+			return true
+		}
+	}
+	return false
+}
+
+// uas returns the points' Type A uncertainties, dB.
+func (a *analysis) uas() []float64 {
+	out := make([]float64, len(a.inc))
+	for i, s := range a.inc {
+		out[i] = s.UADB
+	}
+	return out
 }
 
 // localSlope is the least-squares slope (dB/decade) of the included points
@@ -386,15 +466,16 @@ func (a *analysis) endSlope(low bool) *Slope {
 	return makeSlope(a.xs, sel, s, "least squares over the first or last half decade of the sweep")
 }
 
-// ordersAround returns the orders to try for a side with an implied order.
+// ordersAround returns the orders to try for a side with an implied order
+// (up to MaxSideOrder).
 func ordersAround(s *Slope) []int {
 	if s == nil || s.Points < 3 {
 		return []int{1, 2, 3, 4}
 	}
-	n := max(1, min(4, s.Order))
+	n := max(1, min(MaxSideOrder, s.Order))
 	var out []int
 	for o := n - 1; o <= n+1; o++ {
-		if o >= 1 && o <= 4 {
+		if o >= 1 && o <= MaxSideOrder {
 			out = append(out, o)
 		}
 	}

@@ -210,8 +210,19 @@ func maxOn(c curve, grid []float64, refine bool) (x, v float64) {
 		}
 	}
 	x = grid[best]
-	if !refine || len(grid) < 3 {
+	if len(grid) < 3 {
 		return x, bv
+	}
+	if !refine {
+		// Between samples: the vertex of the parabola through the
+		// largest sample and its neighbours (in log10 f, dB).
+		if best == 0 || best == len(grid)-1 {
+			return x, bv
+		}
+		xs := grid[best-1 : best+2]
+		ys := []float64{c.atLog(xs[0]), bv, c.atLog(xs[2])}
+		xv := parabolaX(xs, ys)
+		return xv, parabolaAt(xs, ys, xv)
 	}
 	lo := grid[max(best-1, 0)]
 	hi := grid[min(best+1, len(grid)-1)]
@@ -236,6 +247,15 @@ func maxOn(c curve, grid []float64, refine bool) (x, v float64) {
 		return xm, vm
 	}
 	return x, bv
+}
+
+// parabolaAt evaluates the parabola through three points at x (Newton's
+// divided differences).
+func parabolaAt(x, y []float64, v float64) float64 {
+	d1 := (y[1] - y[0]) / (x[1] - x[0])
+	d2 := (y[2] - y[1]) / (x[2] - x[1])
+	c := (d2 - d1) / (x[2] - x[0])
+	return y[0] + d1*(v-x[0]) + c*(v-x[0])*(v-x[1])
 }
 
 // meanOn is the mean of c over [a, b] in x (Simpson's rule, 256 intervals).

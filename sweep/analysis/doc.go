@@ -11,7 +11,16 @@
 //     interpolant, never on straight lines between points;
 //   - model: the response in dB fitted by weighted nonlinear least squares
 //     with a cascade of standard sections (first- and second-order low- and
-//     high-pass), the structure chosen by the Bayesian information criterion.
+//     high-pass, second-order band-pass, real zeros — with a pole, a shelf —
+//     and zero pairs on the jω axis — notches and stop-band zeros — up to
+//     MaxSideOrder poles per side), the structure chosen by the Bayesian
+//     information criterion among candidates started from the data's
+//     slopes, corners, dips and level steps.
+//
+// The noise is the points' Type A uncertainty or, where they declare
+// none, estimated from the data. A model corner's uncertainty is the fit's
+// covariance propagated to the corner; an interpolated corner's adds the
+// spread of other interpolants' crossings (the method error).
 //
 // The reported corners (and the other figures taken from the curve) come
 // from the model when its residual is at the noise level and shows no

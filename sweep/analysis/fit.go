@@ -19,7 +19,8 @@ type fitData struct {
 // newFitData bins the included samples into at most maxPoints bins equally
 // spaced in log frequency (one sample per bin when there are fewer samples
 // than bins). A bin's y is the mean gain of its samples and its s the rms
-// of their Type A uncertainties (raised to floorDB) divided by √m.
+// of their Type A uncertainties (raised to floorDB, the noise assumed for a
+// point without its own; see ModelTest) divided by √m.
 func newFitData(s []Sample, floorDB float64, maxPoints int) *fitData {
 	d := &fitData{loHz: s[0].FreqHz, hiHz: s[len(s)-1].FreqHz}
 	add := func(x, y, ua2 float64, m int) {
@@ -66,7 +67,7 @@ type structure []SectionKind
 func (st structure) nParams() int {
 	n := 0
 	for _, k := range st {
-		n += k.order()
+		n += k.nParams()
 	}
 	return n
 }
@@ -84,6 +85,7 @@ type evaluator struct {
 	jac    []float64 // n×np
 	gain   float64
 	last   []float64
+	lo, hi []float64 // bounds of the parameters, nil for none
 }
 
 func newEvaluator(d *fitData, st structure) *evaluator {
@@ -91,6 +93,20 @@ func newEvaluator(d *fitData, st structure) *evaluator {
 	np := st.nParams()
 	return &evaluator{d: d, st: st, np: np, shape: make([]float64, n), dshape: make([]float64, n*np),
 		r: make([]float64, n), jac: make([]float64, n*np)}
+}
+
+// boundQ keeps every Q the fit steps to just inside the range where a
+// model is valid (see model).
+func (e *evaluator) boundQ() {
+	e.lo, e.hi = make([]float64, e.np), make([]float64, e.np)
+	j := 0
+	for _, k := range e.st {
+		e.lo[j], e.hi[j] = math.Inf(-1), math.Inf(1)
+		if k.nParams() == 2 {
+			e.lo[j+1], e.hi[j+1] = math.Log(0.0501), math.Log(199.9)
+		}
+		j += k.nParams()
+	}
 }
 
 func (e *evaluator) eval(theta []float64) {
@@ -109,7 +125,7 @@ func (e *evaluator) eval(theta []float64) {
 	for _, k := range e.st {
 		p := theta[j]
 		q := 0.0
-		if k.order() == 2 {
+		if k.nParams() == 2 {
 			q = theta[j+1]
 		}
 		inv2 := math.Exp(-2 * p)
@@ -118,11 +134,11 @@ func (e *evaluator) eval(theta []float64) {
 			g, dp, dq := sectionDBu(k, e.d.lf[i]-p, e.d.f2[i]*inv2, iq2)
 			e.shape[i] += g
 			e.dshape[i*np+j] = dp
-			if k.order() == 2 {
+			if k.nParams() == 2 {
 				e.dshape[i*np+j+1] = dq
 			}
 		}
-		j += k.order()
+		j += k.nParams()
 	}
 	var sw, swr float64
 	mean := make([]float64, np)
@@ -210,6 +226,9 @@ func (e *evaluator) lm(x0 []float64) (x []float64, chi2 float64) {
 				d := delta.AtVec(c)
 				// Keep a step within a decade-and-a-half in f0 or Q.
 				trial[c] = x[c] + math.Max(-3.5, math.Min(3.5, d))
+				if e.lo != nil {
+					trial[c] = clamp(trial[c], e.lo[c], e.hi[c])
+				}
 			}
 			f := e.chi2(trial)
 			if f < chi2 {
@@ -257,7 +276,18 @@ type fitted struct {
 // fitOne minimises χ² for st from each start and returns the best valid
 // fit; ok is false when no start gave a valid model.
 func fitOne(d *fitData, st structure, starts [][]float64) (best fitted, ok bool) {
+	return fitWith(newEvaluator(d, st), d, st, starts)
+}
+
+// fitOneQ is fitOne with every Q kept inside the valid range during the
+// steps (for cascades with zeros, whose fits otherwise wander off).
+func fitOneQ(d *fitData, st structure, starts [][]float64) (best fitted, ok bool) {
 	e := newEvaluator(d, st)
+	e.boundQ()
+	return fitWith(e, d, st, starts)
+}
+
+func fitWith(e *evaluator, d *fitData, st structure, starts [][]float64) (best fitted, ok bool) {
 	best.chi2 = math.Inf(1)
 	for _, x0 := range starts {
 		x, f := e.lm(x0)
@@ -286,14 +316,14 @@ func (e *evaluator) model(theta []float64, d *fitData) (Model, bool) {
 		if s.FHz < d.loHz/30 || s.FHz > d.hiHz*30 || math.IsNaN(s.FHz) {
 			return m, false
 		}
-		if k.order() == 2 {
+		if k.nParams() == 2 {
 			s.Q = math.Exp(theta[j+1])
 			if !(s.Q >= 0.05 && s.Q <= 200) {
 				return m, false
 			}
 		}
 		m.Sections = append(m.Sections, s)
-		j += k.order()
+		j += k.nParams()
 	}
 	// Canonical order: high-pass sections first, then by frequency.
 	sort.SliceStable(m.Sections, func(a, b int) bool {
@@ -305,12 +335,6 @@ func (e *evaluator) model(theta []float64, d *fitData) (Model, bool) {
 	})
 	return m, true
 }
-
-// sideStructures are the cascades tried for one side, by order 1…4.
-var (
-	lowSide  = [5]structure{nil, {HighPass1}, {HighPass2}, {HighPass2, HighPass1}, {HighPass2, HighPass2}}
-	highSide = [5]structure{nil, {LowPass1}, {LowPass2}, {LowPass2, LowPass1}, {LowPass2, LowPass2}}
-)
 
 // sideStarts returns starting parameters (ln f0, ln Q…) for a side of the
 // given order around the corner hint fcHz. For the high-pass side the
@@ -328,6 +352,8 @@ func sideStarts(order int, fcHz float64, hp bool) [][]float64 {
 	case 4:
 		// Butterworth-like, Chebyshev-like (low, high Q), Bessel-like.
 		sets = [][]sec{{{1, 0.54}, {1, 1.31}}, {{0.6, 0.78}, {1, 3.5}}, {{1.4, 0.52}, {1.6, 0.81}}}
+	default:
+		return patternStarts(order, fcHz, hp)
 	}
 	out := make([][]float64, 0, len(sets))
 	for _, set := range sets {
@@ -353,17 +379,26 @@ type fitHints struct {
 	lowHz, highHz         float64
 }
 
+// bicOf is the Bayesian information criterion of a fit to d:
+// n·ln(χ²/n) + k·ln n. A residual below 1/20 of the assumed noise is
+// treated as 1/20 of it, so that extra sections cannot win by fitting
+// rounding.
+func bicOf(d *fitData, f fitted) float64 {
+	const minMeanChi2 = 1.0 / 400
+	n := float64(len(d.y))
+	k := f.st.nParams() + 1
+	return n*math.Log(math.Max(f.chi2/n, minMeanChi2)) + float64(k)*math.Log(n)
+}
+
 // fitModels fits every combination of the hinted low-side and high-side
-// cascades and returns them sorted by BIC (best first).
+// cascades and returns them sorted by BIC (best first). With one pole on
+// each side the second-order band-pass (any Q) is tried as well.
 func fitModels(d *fitData, h fitHints) []fitted {
 	n := float64(len(d.y))
 	var out []fitted
-	// A residual below 1/20 of the assumed noise is treated as 1/20 of it
-	// in the BIC, so that extra sections cannot win by fitting rounding.
-	const minMeanChi2 = 1.0 / 400
 	for _, lo := range h.lowOrders {
 		for _, hi := range h.highOrders {
-			st := append(append(structure{}, lowSide[lo]...), highSide[hi]...)
+			st := append(sideStructure(lo, true), sideStructure(hi, false)...)
 			k := st.nParams() + 1
 			if float64(k) >= n-2 {
 				continue
@@ -382,12 +417,19 @@ func fitModels(d *fitData, h fitHints) []fitted {
 				}
 				starts[i] = v
 			}
-			f, ok := fitOne(d, st, starts)
-			if !ok {
-				continue
+			if f, ok := fitOne(d, st, starts); ok {
+				f.bic = bicOf(d, f)
+				out = append(out, f)
 			}
-			f.bic = n*math.Log(math.Max(f.chi2/n, minMeanChi2)) + float64(k)*math.Log(n)
-			out = append(out, f)
+			if lo == 1 && hi == 1 && h.lowHz > 0 && h.highHz > h.lowHz {
+				f0 := math.Sqrt(h.lowHz * h.highHz)
+				q := f0 / (h.highHz - h.lowHz)
+				bs := [][]float64{{math.Log(f0), math.Log(q)}, {math.Log(f0), math.Log(math.Max(q, 0.5) * 2)}}
+				if f, ok := fitOne(d, structure{BandPass2}, bs); ok {
+					f.bic = bicOf(d, f)
+					out = append(out, f)
+				}
+			}
 		}
 	}
 	sort.SliceStable(out, func(a, b int) bool { return out[a].bic < out[b].bic })

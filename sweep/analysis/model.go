@@ -13,6 +13,10 @@ type SectionKind string
 //
 //	LP1: |H|² = 1/(1+u²)              HP1: |H|² = u²/(1+u²)
 //	LP2: |H|² = 1/((1−u²)² + u²/Q²)   HP2: |H|² = u⁴/((1−u²)² + u²/Q²)
+//	BP2: |H|² = (u²/Q²)/((1−u²)² + u²/Q²)
+//	Z1:  |H|² = 1+u²                  (a real zero; with an LP1, a shelf)
+//	ZJ:  |H|² = (1−u²)²               (a pair of zeros on the jω axis: with
+//	                                   an LP2, a notch or a stop-band zero)
 //
 // (standard filter handbook forms of the first- and second-order sections).
 const (
@@ -20,6 +24,9 @@ const (
 	HighPass1 SectionKind = "highpass1"
 	LowPass2  SectionKind = "lowpass2"
 	HighPass2 SectionKind = "highpass2"
+	BandPass2 SectionKind = "bandpass2"
+	Zero1     SectionKind = "zero1"
+	ZeroPairJ SectionKind = "zeropair"
 )
 
 // Section is one fitted section.
@@ -27,13 +34,26 @@ type Section struct {
 	Kind SectionKind `json:"kind"`
 	FHz  float64     `json:"f_hz"`
 	// Q is the quality factor of a second-order section; absent (0) for a
-	// first-order one.
+	// first-order one or a zero pair.
 	Q float64 `json:"q,omitempty"`
 }
 
-func (k SectionKind) order() int {
-	if k == LowPass2 || k == HighPass2 {
+// nParams is the number of shape parameters: ln f0, and ln Q for a
+// second-order section with poles.
+func (k SectionKind) nParams() int {
+	if k == LowPass2 || k == HighPass2 || k == BandPass2 {
 		return 2
+	}
+	return 1
+}
+
+// order is the number of poles of the section (zeros count 0).
+func (k SectionKind) order() int {
+	switch k {
+	case LowPass2, HighPass2, BandPass2:
+		return 2
+	case Zero1, ZeroPairJ:
+		return 0
 	}
 	return 1
 }
@@ -42,6 +62,14 @@ func (k SectionKind) highPass() bool { return k == HighPass1 || k == HighPass2 }
 
 // Describe renders s as a phrase: "second-order low-pass at 95 kHz, Q 0.71".
 func (s Section) Describe() string {
+	switch s.Kind {
+	case Zero1:
+		return "real zero at " + FormatHz(s.FHz, 3)
+	case ZeroPairJ:
+		return "zero pair on the jω axis at " + FormatHz(s.FHz, 3)
+	case BandPass2:
+		return fmt.Sprintf("second-order band-pass at %s, Q %.2f", FormatHz(s.FHz, 3), s.Q)
+	}
 	var b strings.Builder
 	if s.Kind.order() == 2 {
 		b.WriteString("second-order ")
@@ -81,6 +109,12 @@ func sectionDBu(k SectionKind, lu, u2, iq2 float64) (g, dp, dq float64) {
 			dp -= 2 * db10
 		}
 		return g, dp, 0
+	case Zero1:
+		return db10 * math.Log1p(u2), -db10 * 2 * u2 / (1 + u2), 0
+	case ZeroPairJ:
+		// g = 10·log10((1−u²)²); dg/dp = 10·log10(e)·4u²/(1−u²).
+		a := 1 - u2
+		return db10 * math.Log(a*a), db10 * 4 * u2 / a, 0
 	default:
 		a := 1 - u2
 		d := a*a + u2*iq2
@@ -90,9 +124,15 @@ func sectionDBu(k SectionKind, lu, u2, iq2 float64) (g, dp, dq float64) {
 		dDdq := -2 * u2 * iq2
 		dp = -db10 * dDdp / d
 		dq = -db10 * dDdq / d
-		if k == HighPass2 {
+		switch k {
+		case HighPass2:
 			g += 4 * db10 * lu
 			dp -= 4 * db10
+		case BandPass2:
+			// u²/Q²: + 10·log10(u²) − 20·log10(Q), q = ln Q.
+			g += 2*db10*lu + db10*math.Log(iq2)
+			dp -= 2 * db10
+			dq -= 2 * db10
 		}
 		return g, dp, dq
 	}
@@ -151,13 +191,26 @@ func (m *Model) Describe() string {
 	return strings.Join(parts, " × ")
 }
 
+// describeSections lists the model section by section, in words.
+func describeSections(m Model) []string {
+	out := make([]string, len(m.Sections))
+	for i, s := range m.Sections {
+		out[i] = s.Describe()
+	}
+	return out
+}
+
 // Order returns the number of poles on the high-pass (low-frequency) side
 // and on the low-pass (high-frequency) side.
 func (m *Model) Order() (lowSide, highSide int) {
 	for _, s := range m.Sections {
-		if s.Kind.highPass() {
+		switch {
+		case s.Kind == BandPass2:
+			lowSide++
+			highSide++
+		case s.Kind.highPass():
 			lowSide += s.Kind.order()
-		} else {
+		default:
 			highSide += s.Kind.order()
 		}
 	}

@@ -3,16 +3,19 @@ package analysis
 import (
 	"fmt"
 	"math"
+	"sort"
 	"strings"
 )
 
 // ModelTest documents the rule deciding whether the fitted model's corners
 // are reported.
 //
-// The fit sees each point with a standard deviation s = max(u_A, floor)
-// (u_A the point's Type A uncertainty in dB, floor = Options.NoiseFloorDB,
-// 0.01 dB by default; for binned long responses s/√m). The model with the
-// lowest BIC = n·ln(χ²/n) + k·ln n (χ² = Σ(r/s)², k = number of
+// The fit sees each point with a standard deviation s: its Type A
+// uncertainty u_A in dB when the data declare one (never below half the
+// median declared u_A, so that one tiny figure cannot dominate), and
+// otherwise the noise estimated from the data by a difference-based
+// estimator (diffNoiseDB); for binned long responses s/√m. The model with
+// the lowest BIC = n·ln(χ²/n) + k·ln n (χ² = Σ(r/s)², k = number of
 // parameters, the gain included) is tested. It is accepted, and its corners
 // reported, when both hold:
 //
@@ -20,17 +23,80 @@ import (
 //     (2 by default);
 //  2. the residual has no structure: the lag-1 autocorrelation of r/s in
 //     frequency order is at most max(0.5, 3/√n) — skipped when the rms
-//     residual is below the floor, where structure does not matter.
+//     residual is below Options.NoiseFloorDB (the resolution below which
+//     structure does not matter) or √(χ²/n) ≤ 1.
 //
 // Otherwise the corners come from interpolation. The fit needs at least
-// k + 3 points per candidate; cascades of up to four poles per side are
-// tried, the orders guided by the measured slopes (implied order ± 1).
+// k + 3 points per candidate; cascades of up to MaxSideOrder poles per side
+// are tried, the orders guided by the measured slopes (implied order ± 1),
+// then extended by zero pairs and shelves where the data or the residual
+// suggest them (see augment).
 const ModelTest = "reduced chi <= factor and lag-1 autocorrelation <= max(0.5, 3/sqrt(n))"
+
+// searchPoints is the number of bins the model search works on; the best
+// candidates are then refined on all the fit points.
+const searchPoints = 100
+
+// noiseOf returns the standard deviation the fit assumes for a point
+// without its own (see ModelTest), and whether the data declare theirs.
+func (a *analysis) noiseOf() (floorDB float64, declared bool, diffDB float64) {
+	var ua []float64
+	for _, s := range a.inc {
+		if s.UADB > 0 && !math.IsInf(s.UADB, 0) {
+			ua = append(ua, s.UADB)
+		}
+	}
+	diffDB = diffNoiseDB(a.xs, a.ys)
+	if len(ua) > 0 {
+		sort.Float64s(ua)
+		return median(ua) / 2, true, diffDB
+	}
+	// A numerical floor only: gains written with about nine digits.
+	const resolutionDB = 1e-9
+	if !(diffDB > resolutionDB) {
+		return resolutionDB, false, diffDB
+	}
+	return diffDB, false, diffDB
+}
+
+// search runs the model search on at most searchPoints bins and refines
+// the best candidates on d.
+func (a *analysis) search(d *fitData, h fitHints, floorDB float64) []fitted {
+	coarse := d
+	if len(d.y) > searchPoints {
+		coarse = newFitData(a.inc, floorDB, searchPoints)
+	}
+	cands := fitModels(coarse, h)
+	bic := func(f fitted) float64 { return bicOf(coarse, f) }
+	cands = augment(coarse, cands, h, a.o.ModelFactor, bic)
+	if len(cands) > 0 && (cands[0].st.hasZeros() || !residualStats(coarse, &cands[0].model).ok(coarse, a.o.ModelFactor)) {
+		// The slopes may understate the order (a roll-off cut short by
+		// the sweep's end), and zero pairs may stand in for missing poles:
+		// try steeper all-pole sides too.
+		h2 := h
+		h2.lowOrders, h2.highOrders = steeper(h.lowOrders), steeper(h.highOrders)
+		cands = append(cands, fitModels(coarse, h2)...)
+		sort.SliceStable(cands, func(i, j int) bool { return cands[i].bic < cands[j].bic })
+	}
+	if coarse == d {
+		return cands
+	}
+	var out []fitted
+	for _, c := range cands[:min(3, len(cands))] {
+		if f, ok := fitOne(d, c.st, [][]float64{thetaOfModel(c)}); ok {
+			f.bic = bicOf(d, f)
+			out = append(out, f)
+		}
+	}
+	sort.SliceStable(out, func(i, j int) bool { return out[i].bic < out[j].bic })
+	return out
+}
 
 // fit runs the model fit with starts seeded from the interpolated corners
 // and slopes, and applies the residual test (see ModelTest).
 func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope) *ModelResult {
-	d := newFitData(a.inc, a.o.NoiseFloorDB, a.o.MaxFitPoints)
+	floorDB, declared, diffDB := a.noiseOf()
+	d := newFitData(a.inc, floorDB, a.o.MaxFitPoints)
 	h := fitHints{lowHz: a.inc[0].FreqHz, highHz: a.inc[len(a.inc)-1].FreqHz}
 	side := func(corner *float64, beyond, end *Slope, falling bool) (orders []int, hint float64, ok bool) {
 		if corner != nil {
@@ -51,37 +117,29 @@ func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope)
 	if h.highOrders, hint, ok = side(ie.HighHz, slopeHigh, endHigh, true); ok && hint > 0 {
 		h.highHz = hint
 	}
-	cands := fitModels(d, h)
+	cands := a.search(d, h, floorDB)
 	if len(cands) == 0 {
 		return nil
 	}
 	best := cands[0]
-	mr := &ModelResult{Model: best.model, Description: best.model.Describe(), BIC: best.bic, FitPoints: len(d.y)}
+	mr := &ModelResult{Model: best.model, Description: best.model.Describe(), BIC: best.bic, FitPoints: len(d.y),
+		Sections: describeSections(best.model), NoiseDeclared: declared, NoiseDiffDB: nanToZero(diffDB)}
 	n := float64(len(d.y))
-	var sr2, ss2, lagNum, lagDen float64
-	var prevZ float64
+	st := residualStats(d, &best.model)
+	var ss2 float64
 	for i := range d.y {
-		r := d.y[i] - best.model.atLog(d.xs[i])
-		z := r / d.s[i]
-		sr2 += r * r
 		ss2 += d.s[i] * d.s[i]
-		lagDen += z * z
-		if i > 0 {
-			lagNum += z * prevZ
-		}
-		prevZ = z
 	}
-	mr.ResidualRMSDB = math.Sqrt(sr2 / n)
+	mr.ResidualRMSDB, mr.ReducedChi, mr.Lag1 = st.rmsDB, st.redChi, st.lag1
 	mr.NoiseDB = math.Sqrt(ss2 / n)
-	mr.ReducedChi = math.Sqrt(best.chi2 / n)
-	if lagDen > 0 {
-		mr.Lag1 = lagNum / lagDen
+	if dof := n - float64(best.st.nParams()+1); dof > 0 {
+		mr.NoiseFitDB = st.rmsDB * math.Sqrt(n/dof)
 	}
 	lagMax := math.Max(0.5, 3/math.Sqrt(n))
 	switch {
 	case mr.ReducedChi > a.o.ModelFactor:
 		mr.Reason = fmt.Sprintf("residual %.3g dB rms is above the noise level: reduced chi %.3g > %g", mr.ResidualRMSDB, mr.ReducedChi, a.o.ModelFactor)
-	case mr.ResidualRMSDB > a.o.NoiseFloorDB && mr.Lag1 > lagMax:
+	case mr.ResidualRMSDB > a.o.NoiseFloorDB && mr.ReducedChi > 1 && mr.Lag1 > lagMax:
 		mr.Reason = fmt.Sprintf("residual %.3g dB rms shows structure: lag-1 autocorrelation %.2f > %.2f", mr.ResidualRMSDB, mr.Lag1, lagMax)
 	default:
 		mr.Accepted = true
@@ -95,7 +153,44 @@ func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope)
 		}
 		mr.Candidates = append(mr.Candidates, Candidate{Structure: c.st.String(), BIC: c.bic, ResidualRMSDB: math.Sqrt(sr / n)})
 	}
+	a.cov = newCovariance(d, best, declared)
 	return mr
+}
+
+// steeper returns the orders two to four above the highest of orders (none
+// when that is 0), up to MaxSideOrder.
+func steeper(orders []int) []int {
+	top := 0
+	for _, o := range orders {
+		top = max(top, o)
+	}
+	if top == 0 {
+		return []int{0}
+	}
+	var out []int
+	for o := top + 2; o <= min(top+4, MaxSideOrder); o += 2 {
+		out = append(out, o)
+	}
+	if len(out) == 0 {
+		return []int{top}
+	}
+	return out
+}
+
+func nanToZero(v float64) float64 {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0
+	}
+	return v
+}
+
+func (st structure) hasZeros() bool {
+	for _, k := range st {
+		if k == ZeroPairJ {
+			return true
+		}
+	}
+	return false
 }
 
 func (st structure) String() string {

@@ -60,9 +60,11 @@ type Options struct {
 	// Mask, when non-nil, is checked against the response.
 	Mask *Mask
 
-	// NoiseFloorDB is the smallest noise level assumed for a point, in dB,
-	// whatever its Type A uncertainty says (converter resolution and
-	// linearity). Zero means DefaultNoiseFloorDB.
+	// NoiseFloorDB is the resolution of the gains, in dB: a model residual
+	// below it counts as adequate whatever its structure (see ModelTest).
+	// It is not a noise level: the noise is the points' Type A uncertainty
+	// or, where the data declare none, estimated from the data. Zero means
+	// DefaultNoiseFloorDB.
 	NoiseFloorDB float64
 	// ModelFactor is how far above the noise level the model's residual may
 	// be for the model to be trusted; zero means DefaultModelFactor.

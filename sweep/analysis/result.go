@@ -130,9 +130,20 @@ type ModelResult struct {
 	// lag-1 autocorrelation of the normalised residuals in frequency
 	// order (structure left in the residual shows as Lag1 near 1).
 	ReducedChi float64 `json:"reduced_chi"`
-	Lag1       float64 `json:"lag1"`
-	BIC        float64 `json:"bic"`
-	FitPoints  int     `json:"fit_points"`
+	// NoiseDeclared says whether the points carried their own Type A
+	// uncertainty; otherwise NoiseDB is estimated from the data by the
+	// difference-based estimator (NoiseDiffDB). NoiseFitDB is the residual
+	// of the fitted model with its degrees of freedom, √(Σr²/(n−k)): the
+	// cross-check, and the noise the corner uncertainty uses when the data
+	// declare none.
+	NoiseDeclared bool    `json:"noise_declared"`
+	NoiseDiffDB   float64 `json:"noise_diff_db"`
+	NoiseFitDB    float64 `json:"noise_fit_db"`
+	// Sections lists the model section by section, in words.
+	Sections  []string `json:"sections_described"`
+	Lag1      float64  `json:"lag1"`
+	BIC       float64  `json:"bic"`
+	FitPoints int      `json:"fit_points"`
 	// Accepted says whether the model's residual is at the noise level, so
 	// that its corners are reported; Reason explains the decision.
 	Accepted   bool        `json:"accepted"`

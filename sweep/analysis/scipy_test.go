@@ -133,10 +133,14 @@ func deref(v *float64) any {
 
 // TestScipyNoisy adds 0.05 dB rms of seeded noise (declared as the points'
 // Type A uncertainty) to the SciPy tables, 20 seeds per filter: the rms
-// corner error over the seeds must be within 0.5 %, and every corner
-// within its own expanded uncertainty (k = 2) of SciPy's.
+// corner error over the seeds must be within 0.5 %, and the expanded
+// uncertainty (k = 2, about 95 % coverage by JCGM 100:2008 §6.2) must
+// cover SciPy's corner in at least 88 % of the 120 cases (95 % less about
+// 3.5 binomial standard deviations; the battery checks 90..98 % over
+// thousands of corners, where the upper bound is meaningful too).
 func TestScipyNoisy(t *testing.T) {
 	const seeds = 20
+	covered, total := 0, 0
 	for name, f := range loadScipy(t) {
 		pts := loadScipyTable(t, name)
 		c := f.Corners[1] // frequency reference, half power
@@ -161,9 +165,12 @@ func TestScipyNoisy(t *testing.T) {
 				if pr[0] == nil {
 					continue
 				}
-				if pr[2] == nil || math.Abs(*pr[0]-*pr[1]) > *pr[2] {
-					t.Errorf("%s seed %d: corner %v Hz is %.3g %% from SciPy's %v Hz, beyond its expanded uncertainty %v", name, seed, *pr[0], 100*e, *pr[1], deref(pr[2]))
+				if pr[2] != nil && math.Abs(*pr[0]-*pr[1]) <= *pr[2] {
+					covered++
+				} else {
+					t.Logf("%s seed %d: corner %v Hz is %.3g %% from SciPy's %v Hz, beyond its expanded uncertainty %v", name, seed, *pr[0], 100*e, *pr[1], deref(pr[2]))
 				}
+				total++
 				ss += e * e
 				n++
 				worst = math.Max(worst, math.Abs(e))
@@ -174,6 +181,9 @@ func TestScipyNoisy(t *testing.T) {
 		if rms > 0.005 {
 			t.Errorf("%s: rms corner error %.3f %% over %d seeds: want <= 0.5 %%", name, 100*rms, seeds)
 		}
+	}
+	if cov := float64(covered) / float64(total); cov < 0.88 {
+		t.Errorf("k = 2 coverage %d/%d: want at least 88 %%", covered, total)
 	}
 }
 
@@ -226,7 +236,7 @@ func thetaOf(t *testing.T, m Model, st structure) []float64 {
 			if !used[i] && s.Kind == k {
 				used[i], found = true, true
 				th = append(th, math.Log(s.FHz))
-				if k.order() == 2 {
+				if k.nParams() == 2 {
 					th = append(th, math.Log(s.Q))
 				}
 				break

@@ -206,6 +206,18 @@ func ReadCSV(r io.Reader, name string, opts ReadOptions) ([]point.Point, error) 
 	return pts, nil
 }
 
+// hasBudget says whether a CSV file carries the parts of an uncertainty
+// budget (std_rel, conv_acc_rel, dc_acc_v), from which the analysis
+// computes u_gain_db itself.
+func hasBudget(col map[string]int) bool {
+	for _, k := range []string{"std_rel", "conv_acc_rel", "dc_acc_v"} {
+		if _, ok := col[k]; ok {
+			return true
+		}
+	}
+	return false
+}
+
 func csvErr(name string, err error) error {
 	var pe *csv.ParseError
 	if errors.As(err, &pe) {
@@ -318,6 +330,15 @@ func parseRow(cr *csv.Reader, rec []string, col map[string]int, name string, opt
 	p.DCVolts, _ = rp.num("dc_v", math.Inf(-1), false, "a finite voltage")
 	p.Readings = rp.integer("readings")
 	p.StdRel, _ = rp.num("std_rel", 0, false, nonneg)
+	if !hasBudget(col) {
+		// Without a budget of its own, the file's u_gain_db (dB) or
+		// u_vout_vrms (V) is the point's standard uncertainty.
+		if u, ok := rp.num("u_gain_db", 0, false, nonneg); ok {
+			p.StdRel = u / (20 / math.Ln10)
+		} else if u, ok := rp.num("u_vout_vrms", 0, false, nonneg); ok && p.VoutVrms > 0 {
+			p.StdRel = u / p.VoutVrms
+		}
+	}
 	p.ConvAccRel, _ = rp.num("conv_acc_rel", 0, false, nonneg)
 	p.DCAccV, _ = rp.num("dc_acc_v", 0, false, nonneg)
 	p.SettleS, _ = rp.num("settle_s", 0, false, nonneg)
