@@ -14,6 +14,8 @@ type Switch struct {
 	Name     string        `toml:"name"`
 	Framing  Framing       `toml:"framing"`
 	Identity IdentityCheck `toml:"identity"`
+	Dialect  Dialect       `toml:"dialect"`
+	Response Response      `toml:"response"`
 	// MinChannel and MaxChannel bound the channel numbers.
 	MinChannel int `toml:"min_channel"`
 	MaxChannel int `toml:"max_channel"`
@@ -63,6 +65,8 @@ func (s *Switch) validate(p *problems) {
 	checkKind(p, s.Kind, KindSwitch)
 	s.Framing.validate(p)
 	s.Identity.validate(p)
+	s.Dialect.validate(p, s.CheckErrors)
+	s.Response.validate(p)
 	if s.MinChannel < 0 || s.MinChannel > 9999 {
 		p.add("min_channel", s.MinChannel, "0 to 9999", "bad channel")
 	}
