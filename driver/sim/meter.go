@@ -391,6 +391,20 @@ func (b *Bench) voltmeterCommands(in *instrument) {
 	m := b.newMeter(dcMeter, in.faults)
 	in.reset = m.reset
 	m.commands(in.dev)
+	in.setMeterPersonality(b.cfg.Voltmeter.Personality)
+}
+
+// setMeterPersonality restricts a meter's commands to its dialect.
+func (in *instrument) setMeterPersonality(p string) {
+	in.personality = p
+	restrictMeter(in.dev, p)
+	if p == PersonalitySuffixed {
+		idn := suffixedIDN(in.idn)
+		in.dev.Remove(func(pat string) bool { return pat == "*IDN?" })
+		in.dev.MustHandle("*IDN?", func(_ context.Context, c *scpiserver.Call) (string, error) {
+			return idn, c.Arity(0, 0)
+		})
+	}
 }
 
 // dmmCommands registers the AC DMM's command set.
@@ -398,4 +412,5 @@ func (b *Bench) dmmCommands(in *instrument) {
 	m := b.newMeter(acMeter, in.faults)
 	in.reset = m.reset
 	m.commands(in.dev)
+	in.setMeterPersonality(b.cfg.DMM.Personality)
 }
