@@ -38,6 +38,8 @@ type meter struct {
 	apertureS float64
 	samples   int
 	meas      *measurement
+
+	personality string
 }
 
 // measurement is one triggered burst: n readings of aperture ta from
@@ -228,7 +230,7 @@ func (m *meter) commands(d *scpiserver.Device) {
 			return "", err
 		}
 		r, err := m.fetch(ctx)
-		return scpiserver.NR3List(r), err
+		return m.answer(r), err
 	})
 	h("[SENSe:]FUNCtion[:ON]", func(_ context.Context, c *scpiserver.Call) (string, error) {
 		if err := c.Arity(1, 1); err != nil {
@@ -352,7 +354,7 @@ func (m *meter) commands(d *scpiserver.Device) {
 			return "", err
 		}
 		r, err := m.fetch(ctx)
-		return scpiserver.NR3List(r), err
+		return m.answer(r), err
 	})
 	h("READ?", func(ctx context.Context, c *scpiserver.Call) (string, error) {
 		if err := c.Arity(0, 0); err != nil {
@@ -362,7 +364,7 @@ func (m *meter) commands(d *scpiserver.Device) {
 			return "", err
 		}
 		r, err := m.fetch(ctx)
-		return scpiserver.NR3List(r), err
+		return m.answer(r), err
 	})
 }
 
@@ -389,6 +391,7 @@ func (b *Bench) newMeter(kind meterKind, f *Faults) *meter {
 // voltmeterCommands registers the DC voltmeter's command set.
 func (b *Bench) voltmeterCommands(in *instrument) {
 	m := b.newMeter(dcMeter, in.faults)
+	m.personality = b.cfg.Voltmeter.Personality
 	in.reset = m.reset
 	m.commands(in.dev)
 	in.setMeterPersonality(b.cfg.Voltmeter.Personality)
@@ -410,6 +413,7 @@ func (in *instrument) setMeterPersonality(p string) {
 // dmmCommands registers the AC DMM's command set.
 func (b *Bench) dmmCommands(in *instrument) {
 	m := b.newMeter(acMeter, in.faults)
+	m.personality = b.cfg.DMM.Personality
 	in.reset = m.reset
 	m.commands(in.dev)
 	in.setMeterPersonality(b.cfg.DMM.Personality)

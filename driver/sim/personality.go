@@ -93,28 +93,24 @@ func restrictMeter(d *scpiserver.Device, personality string) {
 	}
 }
 
-// answerFilter rewrites a response of instrument in for its personality:
-// the suffixed meter's units, overload word and trailing comma.
-func (in *instrument) answerFilter(resp string) string {
-	if in.personality != PersonalitySuffixed || in.role == RoleGenerator || in.role == RoleSwitch {
-		return resp
-	}
-	parts := strings.Split(resp, ",")
-	if len(parts) == 0 || !looksNumeric(parts[0]) {
-		return resp
+// answer formats readings as the meter's personality writes them: NR3
+// list (IEEE 488.2 §8.7.4), or for the suffixed meter each with its unit
+// (VDC, VAC), OVLD for an overload and a comma after the last of a burst.
+func (m *meter) answer(r []float64) string {
+	if m.personality != PersonalitySuffixed {
+		return scpiserver.NR3List(r)
 	}
 	unit := " VDC"
-	if in.role == RoleDMM {
+	if m.kind == acMeter {
 		unit = " VAC"
 	}
-	for i, p := range parts {
-		switch {
-		case !looksNumeric(p):
-			return resp
-		case isOverflowText(p):
+	parts := make([]string, len(r))
+	for i, v := range r {
+		t := scpiserver.NR3(v)
+		if isOverflowText(t) {
 			parts[i] = "OVLD"
-		default:
-			parts[i] = p + unit
+		} else {
+			parts[i] = t + unit
 		}
 	}
 	out := strings.Join(parts, ",")

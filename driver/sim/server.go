@@ -285,7 +285,6 @@ func (in *instrument) process(line string, l link) bool {
 		l.hangUp()
 		return false
 	}
-	resp = in.answerFilter(resp)
 	resp, _ = f.takeCorrupt(resp)
 	if f.takeTruncate() {
 		_ = l.write([]byte(resp[:(len(resp)+1)/2]))
