@@ -84,7 +84,7 @@ const (
 	statusAccepted = "accepted"
 	statusRefused  = "refused"
 	statusNoAnswer = "no answer"
-	statusSent     = "sent"    // no error query to confirm it
+	statusSent     = "sent"     // no error query to confirm it
 	statusSkipped  = "not sent" // deliberately (output_on)
 )
 
