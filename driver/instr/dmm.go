@@ -35,9 +35,9 @@ func (m *meter) setCount(ctx context.Context, n int) error {
 	return nil
 }
 
-// aperture sends the integration time through whichever template the
-// profile has for it.
-func (m *meter) aperture(ctx context.Context, a driver.Aperture, nplcs []float64, minS, maxS float64, tNPLC, tAp *scpi.Seq) error {
+// checkAperture says why a cannot be set with the profile's templates
+// (ErrOutOfRange), before anything is sent.
+func (m *meter) checkAperture(a driver.Aperture, nplcs []float64, minS, maxS float64, tNPLC, tAp *scpi.Seq) error {
 	switch {
 	case a.NPLC > 0 && a.Seconds > 0:
 		return fmt.Errorf("%s: aperture %g NPLC and %g s: give one of the two: %w", m.role, a.NPLC, a.Seconds, driver.ErrOutOfRange)
@@ -45,16 +45,29 @@ func (m *meter) aperture(ctx context.Context, a driver.Aperture, nplcs []float64
 		if tNPLC == nil || !containsF(nplcs, a.NPLC) {
 			return outOfRange(m.role, "aperture (NPLC)", a.NPLC, fmt.Sprintf("one of %v (profile %s)", nplcs, m.p.File))
 		}
-		arg, _ := m.num("nplc", a.NPLC)
-		return m.send(ctx, tNPLC, arg)
 	case a.Seconds > 0:
 		if tAp == nil || a.Seconds < minS || a.Seconds > maxS {
 			return outOfRange(m.role, "aperture (s)", a.Seconds, fmt.Sprintf("%g to %g s (profile %s)", minS, maxS, m.p.File))
 		}
-		arg, _ := m.num("aperture_s", a.Seconds)
-		return m.send(ctx, tAp, arg)
 	case a.NPLC < 0 || a.Seconds < 0:
 		return outOfRange(m.role, "aperture", a.NPLC+a.Seconds, "a positive NPLC or seconds")
+	}
+	return nil
+}
+
+// aperture sends the integration time through whichever template the
+// profile has for it.
+func (m *meter) aperture(ctx context.Context, a driver.Aperture, nplcs []float64, minS, maxS float64, tNPLC, tAp *scpi.Seq) error {
+	if err := m.checkAperture(a, nplcs, minS, maxS, tNPLC, tAp); err != nil {
+		return err
+	}
+	switch {
+	case a.NPLC > 0:
+		arg, _ := m.num("nplc", a.NPLC)
+		return m.send(ctx, tNPLC, arg)
+	case a.Seconds > 0:
+		arg, _ := m.num("aperture_s", a.Seconds)
+		return m.send(ctx, tAp, arg)
 	}
 	return nil // keep the instrument's integration time
 }
@@ -111,6 +124,9 @@ func (v *DCVoltmeter) ConfigureDC(ctx context.Context, cfg driver.DCConfig) erro
 	r, ok := profile.PickRange(dc.RangesV, cfg.RangeV, v.p.RangeHeadroom)
 	if !auto && (!ok || !(cfg.RangeV > 0)) {
 		return outOfRange("voltmeter", "DC range (V)", cfg.RangeV, fmt.Sprintf("more than 0, at most %g V (ranges %v, profile %s)", dc.RangesV[len(dc.RangesV)-1]*v.p.RangeHeadroom, dc.RangesV, v.p.File))
+	}
+	if err := v.checkAperture(cfg.Aperture, dc.NPLC, dc.MinApertureS, dc.MaxApertureS, t.DCSetNPLC, t.DCSetAperture); err != nil {
+		return err
 	}
 	if err := v.mu.acquire(ctx); err != nil {
 		return fmt.Errorf("voltmeter: %w", err)
@@ -249,6 +265,9 @@ func (a *ACVoltmeter) ConfigureAC(ctx context.Context, cfg driver.ACConfig) erro
 	r, ok := profile.PickRange(ac.RangesVrms, cfg.RangeVrms, a.p.RangeHeadroom)
 	if !auto && (!ok || !(cfg.RangeVrms > 0)) {
 		return outOfRange(a.role, "AC range (Vrms)", cfg.RangeVrms, fmt.Sprintf("more than 0, at most %g Vrms (ranges %v, profile %s)", ac.RangesVrms[len(ac.RangesVrms)-1]*a.p.RangeHeadroom, ac.RangesVrms, a.p.File))
+	}
+	if err := a.checkAperture(cfg.Aperture, ac.NPLC, ac.MinApertureS, ac.MaxApertureS, t.ACSetNPLC, t.ACSetAperture); err != nil {
+		return err
 	}
 	if err := a.mu.acquire(ctx); err != nil {
 		return fmt.Errorf("%s: %w", a.role, err)
