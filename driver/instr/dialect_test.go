@@ -150,9 +150,9 @@ func TestDialectApplyVpp(t *testing.T) {
 	if err := g.SetFrequency(ctx, 2000); err != nil {
 		t.Fatal(err)
 	}
-	// 0.0707107 Vpp into 50 Ω shown, hi-z DUT from a 50 Ω source: the
-	// DUT gets 2 × 0.0707107/(2√2) Vrms — the value sent, recorded.
-	want := 2 * 0.0707107 / (2 * math.Sqrt2)
+	// 0.0707106 Vpp into 50 Ω shown, hi-z DUT from a 50 Ω source: the
+	// DUT gets 2 × 0.0707106/(2√2) Vrms — the value sent, recorded.
+	want := 2 * 0.0707106 / (2 * math.Sqrt2)
 	if got := g.SentAmplitudeVrms(); math.Abs(got/want-1) > 1e-12 || g.SentFrequencyHz() != 2000 {
 		t.Fatalf("sent %g Vrms at %g Hz, want %g Vrms at 2000 Hz", got, g.SentFrequencyHz(), want)
 	}

@@ -116,7 +116,9 @@ func (g *Generator) genArgs(s *scpi.Seq, freqHz, amplitude float64) []scpi.Arg {
 		case "amplitude":
 			a, _ = g.num(n, amplitude)
 		case "offset_v":
-			a, _ = g.num(n, g.p.Output.OffsetV)
+			// Toward zero: the offset counts against the amplitude
+			// limit, and rounding must not add to it.
+			a, _ = g.num(n, g.dialect.NumberFormat().TowardZero(g.p.Output.OffsetV))
 		default:
 			continue
 		}
@@ -166,7 +168,7 @@ func (g *Generator) sendGen(ctx context.Context, s *scpi.Seq, extra ...scpi.Arg)
 func (g *Generator) lowestAmplitude() (a float64, ok bool) {
 	a = g.InstrumentAmplitude(g.lim.MinVrms)
 	if !math.IsNaN(a) && !math.IsInf(a, 0) {
-		return a, true
+		return g.dialect.NumberFormat().Ceil(a), true
 	}
 	if m := g.p.Limits.MinAmplitude; m != nil {
 		return *m, true
@@ -223,6 +225,7 @@ func (g *Generator) SetAmplitude(ctx context.Context, vrms float64) error {
 	if err != nil {
 		return err
 	}
+	a = g.sentLevel(a)
 	if err := g.send(ctx, t, g.genArgs(t, f, a)...); err != nil {
 		return err
 	}
@@ -234,6 +237,19 @@ func (g *Generator) SetAmplitude(ctx context.Context, vrms float64) error {
 		return err
 	}
 	return g.readBack(ctx, t.Has("freq_hz"), true, g.round(f), g.round(a))
+}
+
+// sentLevel is the amplitude a (instrument unit) as sent: rounded to the
+// profile's digits toward the lower level, so that a level at the
+// limit never goes over it by a digit; toward the higher one only where
+// the lower would fall under the smallest level allowed.
+func (g *Generator) sentLevel(a float64) float64 {
+	nf := g.dialect.NumberFormat()
+	s := nf.Floor(a)
+	if g.p.Output.DUTVrms(g.p.Output.FromUnit(s)) < g.lim.MinVrms*(1-1e-9) {
+		s = nf.Ceil(a)
+	}
+	return s
 }
 
 // round is the value the instrument receives for v.

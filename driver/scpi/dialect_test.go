@@ -2,6 +2,7 @@ package scpi
 
 import (
 	"errors"
+	"math"
 	"testing"
 
 	"rolloff/driver"
@@ -83,5 +84,23 @@ func TestSeqFormat(t *testing.T) {
 	}
 	if _, err := a.Format(Num("freq_hz", 10), Num("amplitude", 1), Num("offset_v", 0)); err == nil {
 		t.Error("unused {offset_v} accepted")
+	}
+}
+
+// TestNumberFormatDirected: rounding an amplitude never goes above the
+// value asked for, so a level at a limit stays within it.
+func TestNumberFormatDirected(t *testing.T) {
+	f := NumberFormat{}
+	for _, v := range []float64{0.9999995, 1.0000004, -10.0000004, 13.01029995663981, 0.28284271247461906, 1, 123456.7} {
+		fl, ce := f.Floor(v), f.Ceil(v)
+		if fl > v || ce < v || f.Round(fl) != fl || f.Round(ce) != ce {
+			t.Errorf("%v: floor %v, ceil %v", v, fl, ce)
+		}
+		if (ce-fl)/math.Abs(v) > 1.01e-5 {
+			t.Errorf("%v: floor %v and ceil %v more than a 6th-digit step apart", v, fl, ce)
+		}
+		if z := f.TowardZero(v); math.Abs(z) > math.Abs(v) {
+			t.Errorf("%v: toward zero %v", v, z)
+		}
 	}
 }

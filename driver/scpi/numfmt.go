@@ -47,6 +47,30 @@ func (f NumberFormat) Round(v float64) float64 {
 	return r
 }
 
+// Floor returns the largest value with the format's digits not above v:
+// for a level that must not exceed a limit (an amplitude rounded up by
+// a digit could cross it).
+func (f NumberFormat) Floor(v float64) float64 {
+	r := f.Round(v)
+	if r <= v || v == 0 || math.IsNaN(v) || math.IsInf(v, 0) {
+		return r
+	}
+	e := math.Floor(math.Log10(math.Abs(v)))
+	return f.Round(r - math.Pow(10, e-float64(f.digits()-1)))
+}
+
+// Ceil returns the smallest value with the format's digits not below v.
+func (f NumberFormat) Ceil(v float64) float64 { return -f.Floor(-v) }
+
+// TowardZero returns the value with the format's digits nearest v whose
+// magnitude is not above |v|.
+func (f NumberFormat) TowardZero(v float64) float64 {
+	if v < 0 {
+		return f.Ceil(v)
+	}
+	return f.Floor(v)
+}
+
 // Text writes v (rounded) as numeric program data.
 func (f NumberFormat) Text(v float64) (string, error) {
 	r := f.Round(v)
