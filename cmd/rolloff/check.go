@@ -560,7 +560,7 @@ func checkBench(ctx context.Context, w io.Writer, cfg *profile.BenchFile, p *pla
 			for _, sq := range seqOf("commands.init", ps.T.Init) {
 				c.run(ctx, sq.Key(), sq, false)
 			}
-			c.run(ctx, "commands.open_all", scpi.NewSeq("commands.open_all", ps.T.OpenAll), false)
+			c.run(ctx, "commands.open_all", ps.T.OpenAll, false)
 			c.opc(ctx, ps.Dialect)
 			done()
 		}

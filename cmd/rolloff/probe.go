@@ -236,7 +236,7 @@ func probeProfile(ctx context.Context, w io.Writer, s *scpi.Session, p any) erro
 			for _, sq := range seqOf("commands.init", x.T.Init) {
 				c.run(ctx, sq.Key(), sq, false)
 			}
-			c.run(ctx, "commands.open_all", scpi.NewSeq("commands.open_all", x.T.OpenAll), false)
+			c.run(ctx, "commands.open_all", x.T.OpenAll, false)
 			c.opc(ctx, x.Dialect)
 		}
 	default:

@@ -53,10 +53,10 @@ func (s *Switch) Select(ctx context.Context, ch int) error {
 	}
 	defer s.mu.release()
 	s.closed.Store(0)
-	if err := s.send(ctx, seqOf(s.p.T.OpenAll)); err != nil {
+	if err := s.send(ctx, s.p.T.OpenAll); err != nil {
 		return err
 	}
-	if err := s.send(ctx, seqOf(s.p.T.Close), scpi.Int("channel", ch)); err != nil {
+	if err := s.send(ctx, s.p.T.Close, scpi.Int("channel", ch)); err != nil {
 		return err
 	}
 	s.closed.Store(int64(ch))
@@ -70,7 +70,7 @@ func (s *Switch) OpenAll(ctx context.Context) error {
 	}
 	defer s.mu.release()
 	s.closed.Store(0)
-	return s.send(ctx, seqOf(s.p.T.OpenAll))
+	return s.send(ctx, s.p.T.OpenAll)
 }
 
 // Closed returns the channel last closed by Select, 0 when none.

@@ -31,17 +31,17 @@ type Switch struct {
 type SwitchCommands struct {
 	// Init is sent in order after the instrument is cleared.
 	Init []string `toml:"init"`
-	// Close closes one channel; {channel}.
-	Close string `toml:"close"`
+	// Close closes one channel; {channel}. One command or a list.
+	Close Cmds `toml:"close"`
 	// OpenAll opens every channel. No placeholders.
-	OpenAll string `toml:"open_all"`
+	OpenAll Cmds `toml:"open_all"`
 }
 
 // SwitchTmpl are the compiled switch templates.
 type SwitchTmpl struct {
 	Init    []*scpi.Template
-	Close   *scpi.Template
-	OpenAll *scpi.Template
+	Close   *scpi.Seq
+	OpenAll *scpi.Seq
 }
 
 // DecodeSwitch decodes and validates a switch profile.
@@ -77,6 +77,6 @@ func (s *Switch) validate(p *problems) {
 		p.add("settle_s", s.SettleS, "0 to 10 seconds", "bad settling time")
 	}
 	s.T.Init = compileList(p, "commands.init", s.Commands.Init)
-	s.T.Close = compileTemplate(p, "commands.close", s.Commands.Close, true, "channel")
-	s.T.OpenAll = compileTemplate(p, "commands.open_all", s.Commands.OpenAll, true)
+	s.T.Close = compileSeq(p, "commands.close", s.Commands.Close, true, "channel")
+	s.T.OpenAll = compileSeq(p, "commands.open_all", s.Commands.OpenAll, true)
 }
