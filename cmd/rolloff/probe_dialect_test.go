@@ -80,3 +80,36 @@ func TestProbeProfile(t *testing.T) {
 		t.Errorf("no clear line for the 3-field identity:\n%s", out)
 	}
 }
+
+// TestProbeProfileNoAnswer: a read-back query the instrument does not
+// answer is reported as "no answer" with a suggestion, and fails the
+// check; the output is never switched on.
+func TestProbeProfileNoAnswer(t *testing.T) {
+	inst := &scpitest.Instrument{Replies: map[string]string{"*IDN?": "rolloff,SIM-GEN,0001,1.0", "*OPC?": "1"}}
+	addr := scpitest.Listen(t, inst)
+	data, _ := configs.ReadFile("generator-scpi.toml")
+	s := strings.Replace(string(data), `query_frequency = ""`, `query_frequency = "SOURce:FREQuency?"`, 1)
+	s = strings.Replace(s, "query_timeout_s = 2.0", "query_timeout_s = 0.3", 1)
+	file := filepath.Join(t.TempDir(), "gen.toml")
+	if err := os.WriteFile(file, []byte(s), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, out, _ := runCLI("probe", addr, "--profile", file)
+	if code != 1 {
+		t.Fatalf("exit %d, want 1\n%s", code, out)
+	}
+	var line string
+	for _, l := range strings.Split(out, "\n") {
+		if strings.Contains(l, "commands.query_frequency") {
+			line = l
+		}
+	}
+	if !strings.HasPrefix(line, "FAIL") || !strings.Contains(line, "no answer") || !strings.Contains(line, "query_timeout_s") {
+		t.Errorf("query_frequency line %q in:\n%s", line, out)
+	}
+	for _, l := range inst.Received() {
+		if strings.Contains(l, "OUTPut ON") {
+			t.Errorf("the check switched the output on: %q", l)
+		}
+	}
+}

@@ -36,6 +36,10 @@ func TestCommandLists(t *testing.T) {
 	// A meter given its range with each reading needs no set_range.
 	m := edit(t, "dmm-scpi.toml", `read = "READ?"`, `read = "MEASure:VOLTage:DC? {range_v}"`,
 		`set_range = "SENSe:VOLTage:DC:RANGe {range_v}"`, `set_range = ""`)
+	if _, err := profile.DecodeDMM("dmm-scpi.toml", []byte(m)); err == nil || !strings.Contains(err.Error(), "dc.set_auto_range") {
+		t.Fatalf("MEASure with {range_v} and an autorange command: %v, want dc.set_auto_range refused", err)
+	}
+	m = strings.Replace(m, `set_auto_range = "SENSe:VOLTage:DC:RANGe:AUTO ON"`, `set_auto_range = ""`, 1)
 	if _, err := profile.DecodeDMM("dmm-scpi.toml", []byte(m)); err != nil {
 		t.Fatalf("MEASure with {range_v}: %v", err)
 	}

@@ -161,6 +161,9 @@ func (d *DMM) validate(p *problems) {
 	t.DCSetNPLC = compileSeq(p, "dc.set_nplc", d.DC.SetNPLC, len(d.DC.NPLC) > 0, "nplc")
 	t.DCSetAperture = compileSeq(p, "dc.set_aperture", d.DC.SetAperture, d.DC.MaxApertureS > 0, "aperture_s")
 	t.DCRead = compileQuerySeq(p, "dc.read", d.DC.Read, true, placeholdersIf(dcRangeInRead, "range_v")...)
+	if dcRangeInRead && !d.DC.SetAutoRange.Empty() {
+		p.add("dc.set_auto_range", cmdsValue(d.DC.SetAutoRange), `"" when dc.read carries {range_v} (the range goes with each reading)`, "autorange and a range in every reading")
+	}
 	for i, a := range d.DC.Accuracy {
 		k := fmt.Sprintf("dc.accuracy[%d]", i)
 		if !contains(d.DC.RangesV, a.RangeV) {
@@ -183,6 +186,9 @@ func (d *DMM) validate(p *problems) {
 		t.ACSetNPLC = compileSeq(p, "ac.set_nplc", ac.SetNPLC, len(ac.NPLC) > 0, "nplc")
 		t.ACSetAperture = compileSeq(p, "ac.set_aperture", ac.SetAperture, ac.MaxApertureS > 0, "aperture_s")
 		t.ACRead = compileQuerySeq(p, "ac.read", ac.Read, true, placeholdersIf(acRangeInRead, "range_vrms")...)
+		if acRangeInRead && !ac.SetAutoRange.Empty() {
+			p.add("ac.set_auto_range", cmdsValue(ac.SetAutoRange), `"" when ac.read carries {range_vrms} (the range goes with each reading)`, "autorange and a range in every reading")
+		}
 	}
 }
 
