@@ -11,6 +11,7 @@ import (
 	"github.com/rs/zerolog"
 
 	"rolloff/configs"
+	"rolloff/driver"
 	"rolloff/driver/profile"
 )
 
@@ -117,12 +118,23 @@ func TestAmplitudeEveryUnitLoadConvention(t *testing.T) {
 					if err := g.SetOutput(ctx, true); err != nil {
 						t.Fatal(err)
 					}
-					got := b.Sim.DUTInputVrms()
-					if math.Abs(got/want-1) > 1e-9 {
-						t.Errorf("DUT input %g Vrms, asked %g", got, want)
+					// The instrument receives the amplitude rounded to
+					// the profile's 6 significant digits toward the
+					// lower level: what it puts on the DUT is the value
+					// sent, reported by the driver, never above what was
+					// asked and at most one step of the 6th digit under
+					// it (1e-5 relative in Vrms or Vpp; 1e-4 dB, 1.2e-5
+					// in voltage, for a dBm level of 10 to 99).
+					sent := g.(driver.SentSettings).SentAmplitudeVrms()
+					if sent > want*(1+1e-12) || sent < want*(1-1.2e-5) {
+						t.Errorf("sent %g Vrms at the DUT, asked %g", sent, want)
 					}
-					if pk := b.Sim.PeakDUTInputVrms(); math.Abs(pk/want-1) > 1e-9 {
-						t.Errorf("recorded peak %g Vrms, asked %g", pk, want)
+					got := b.Sim.DUTInputVrms()
+					if math.Abs(got/sent-1) > 1e-9 {
+						t.Errorf("DUT input %g Vrms, sent %g (asked %g)", got, sent, want)
+					}
+					if pk := b.Sim.PeakDUTInputVrms(); math.Abs(pk/sent-1) > 1e-9 {
+						t.Errorf("recorded peak %g Vrms, sent %g", pk, sent)
 					}
 				})
 			}
@@ -153,7 +165,9 @@ func TestDBmConventionMismatch(t *testing.T) {
 			t.Fatal(err)
 		}
 	}
-	ratio := b.Sim.PeakDUTInputVrms() / want
+	// Against the value sent (6 significant digits; the profile's
+	// own conversion, so the ratio is the convention's alone).
+	ratio := b.Sim.PeakDUTInputVrms() / b.Generator.(driver.SentSettings).SentAmplitudeVrms()
 	t.Logf("wrong dBm reference: %.4g × the asked amplitude at the DUT", ratio)
 	if math.Abs(ratio-math.Sqrt(50.0/10)) > 1e-9 {
 		t.Errorf("ratio %g, want √5 = %g", ratio, math.Sqrt(5))

@@ -136,7 +136,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 	}
 	// The generator first, and its output off before anything else.
 	g := cfg.Generator
-	sess, where, err := b.connect(ctx, cfg, RoleGenerator, g.Address, g.Generator.Framing)
+	sess, where, err := b.connect(ctx, cfg, RoleGenerator, g.Address, g.Generator.Framing, g.Generator.Dialect, g.Generator.Response)
 	if err != nil {
 		return err
 	}
@@ -148,7 +148,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 	if err := gen.Halt(); err != nil {
 		return fmt.Errorf("%s: switching the output off: %w", where, err)
 	}
-	if err := b.greet(ctx, RoleGenerator, where, sess, g.Generator.Identity); err != nil {
+	if err := b.greet(ctx, RoleGenerator, where, sess, g.Generator.Identity, g.Generator.Dialect, g.Generator.Commands.CheckErrors); err != nil {
 		return err
 	}
 	if err := gen.Setup(ctx); err != nil {
@@ -156,7 +156,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 	}
 
 	if r := cfg.Switch; r != nil {
-		sess, where, err := b.connect(ctx, cfg, RoleSwitch, r.Address, r.Switch.Framing)
+		sess, where, err := b.connect(ctx, cfg, RoleSwitch, r.Address, r.Switch.Framing, r.Switch.Dialect, r.Switch.Response)
 		if err != nil {
 			return err
 		}
@@ -164,7 +164,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 		if err != nil {
 			return fmt.Errorf("%s: %w", where, err)
 		}
-		if err := b.greet(ctx, RoleSwitch, where, sess, r.Switch.Identity); err != nil {
+		if err := b.greet(ctx, RoleSwitch, where, sess, r.Switch.Identity, r.Switch.Dialect, r.Switch.CheckErrors); err != nil {
 			return err
 		}
 		if err := sw.Setup(ctx); err != nil {
@@ -174,7 +174,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 	}
 
 	if r := cfg.Voltmeter; r != nil {
-		sess, where, err := b.connect(ctx, cfg, RoleVoltmeter, r.Address, r.DMM.Framing)
+		sess, where, err := b.connect(ctx, cfg, RoleVoltmeter, r.Address, r.DMM.Framing, r.DMM.Dialect, r.DMM.Response)
 		if err != nil {
 			return err
 		}
@@ -182,7 +182,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 		if err != nil {
 			return fmt.Errorf("%s: %w", where, err)
 		}
-		if err := b.greet(ctx, RoleVoltmeter, where, sess, r.DMM.Identity); err != nil {
+		if err := b.greet(ctx, RoleVoltmeter, where, sess, r.DMM.Identity, r.DMM.Dialect, r.DMM.CheckErrors); err != nil {
 			return err
 		}
 		if err := v.Setup(ctx); err != nil {
@@ -216,7 +216,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 		if m.r == nil {
 			continue
 		}
-		sess, where, err := b.connect(ctx, cfg, m.role, m.r.Address, m.r.DMM.Framing)
+		sess, where, err := b.connect(ctx, cfg, m.role, m.r.Address, m.r.DMM.Framing, m.r.DMM.Dialect, m.r.DMM.Response)
 		if err != nil {
 			return err
 		}
@@ -225,7 +225,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 			return fmt.Errorf("%s: %w", where, err)
 		}
 		a.SetRole(m.role)
-		if err := b.greet(ctx, m.role, where, sess, m.r.DMM.Identity); err != nil {
+		if err := b.greet(ctx, m.role, where, sess, m.r.DMM.Identity, m.r.DMM.Dialect, m.r.DMM.CheckErrors); err != nil {
 			return err
 		}
 		if err := a.Setup(ctx); err != nil {
@@ -249,7 +249,7 @@ func (b *Bench) open(ctx context.Context, cfg *profile.BenchFile) error {
 
 // connect opens the transport and SCPI session of one role. where names
 // the role, address and transport for error messages.
-func (b *Bench) connect(ctx context.Context, cfg *profile.BenchFile, role, address string, f profile.Framing) (*scpi.Session, string, error) {
+func (b *Bench) connect(ctx context.Context, cfg *profile.BenchFile, role, address string, f profile.Framing, d profile.Dialect, r profile.Response) (*scpi.Session, string, error) {
 	addr := address
 	if addr == profile.AddressSim {
 		if b.Sim == nil {
@@ -272,14 +272,16 @@ func (b *Bench) connect(ctx context.Context, cfg *profile.BenchFile, role, addre
 	if err != nil {
 		return nil, where, fmt.Errorf("%s: %w", where, err)
 	}
-	sess := scpi.New(conn, &scpi.Opts{QueryTimeout: f.QueryTimeout(), InterCommandDelay: f.CommandDelay()})
+	sess := scpi.New(conn, profile.SessionOpts(f, d, r))
 	b.sessions = append(b.sessions, sess)
 	return sess, where, nil
 }
 
 // greet asks the instrument who it is, checks that against the profile,
-// clears its status and error queue.
-func (b *Bench) greet(ctx context.Context, role, where string, sess *scpi.Session, check profile.IdentityCheck) error {
+// sends the profile's clear command (dialect.clear, *CLS by default) and,
+// where the profile checks errors and has an error query, drains the
+// error queue.
+func (b *Bench) greet(ctx context.Context, role, where string, sess *scpi.Session, check profile.IdentityCheck, d profile.Dialect, checkErrors bool) error {
 	id, err := sess.Identify(ctx)
 	if err != nil {
 		return fmt.Errorf("%s: *IDN?: %w", where, err)
@@ -288,12 +290,16 @@ func (b *Bench) greet(ctx context.Context, role, where string, sess *scpi.Sessio
 		return fmt.Errorf("%s: *IDN? answered %q; the profile expects manufacturer %q, model beginning %q", where, id.String(), check.Manufacturer, check.ModelPrefix)
 	}
 	b.Identities[role] = id
-	if err := sess.Clear(ctx); err != nil {
-		return fmt.Errorf("%s: *CLS: %w", where, err)
+	if c := d.ClearCommand(); c != "" {
+		if err := sess.Write(ctx, c); err != nil {
+			return fmt.Errorf("%s: %s: %w", where, c, err)
+		}
 	}
-	errs, err := sess.DrainErrors(ctx)
-	if err != nil {
-		return fmt.Errorf("%s: reading the error queue: %w", where, err)
+	var errs []scpi.Error
+	if checkErrors && sess.HasErrorQuery() {
+		if errs, err = sess.DrainErrors(ctx); err != nil {
+			return fmt.Errorf("%s: reading the error queue: %w", where, err)
+		}
 	}
 	for _, e := range errs {
 		b.log.Warn().Str("role", role).Int("code", e.Code).Str("message", e.Message).Msg("error queue not empty after *CLS")

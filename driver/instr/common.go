@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"rolloff/driver"
+	"rolloff/driver/profile"
 	"rolloff/driver/scpi"
 )
 
@@ -30,25 +31,40 @@ func (l lock) acquire(ctx context.Context) error {
 func (l lock) release() { <-l }
 
 // link is what every SCPI role shares: a session, whether to check the
-// error queue, and the role's name for messages.
+// error queue, the profile's dialect (number format, wait after
+// settings) and the role's name for messages.
 type link struct {
 	role        string
 	sess        *scpi.Session
 	checkErrors bool
+	dialect     profile.Dialect
 }
 
-// send formats t with args and writes it. When the profile asks for it,
-// the error queue is read afterwards; an entry fails the call.
-func (l *link) send(ctx context.Context, t *scpi.Template, args ...scpi.Arg) error {
-	cmd, err := t.Format(args...)
+// seqOf makes a one-command sequence of t.
+func seqOf(t *scpi.Template) *scpi.Seq { return scpi.NewSeq(t.Key(), t) }
+
+// num is a number argument in the profile's format, and the value the
+// instrument receives (rounded to the profile's digits).
+func (l *link) num(name string, v float64) (scpi.Arg, float64) {
+	f := l.dialect.NumberFormat()
+	return scpi.NumIn(name, v, f), f.Round(v)
+}
+
+// send formats s with args and writes its commands in order. When the
+// profile asks for it, the error queue is read afterwards; an entry
+// fails the call.
+func (l *link) send(ctx context.Context, s *scpi.Seq, args ...scpi.Arg) error {
+	cmds, err := s.Format(args...)
 	if err != nil {
 		return fmt.Errorf("%s: %w", l.role, err)
 	}
-	if err := l.sess.Write(ctx, cmd); err != nil {
-		return fmt.Errorf("%s: %s: %w", l.role, t.Key(), err)
+	for _, cmd := range cmds {
+		if err := l.sess.Write(ctx, cmd); err != nil {
+			return fmt.Errorf("%s: %s: %w", l.role, s.Key(), err)
+		}
 	}
 	if l.checkErrors {
-		return l.check(ctx, t.Key(), cmd)
+		return l.check(ctx, s.Key(), strings.Join(cmds, " then "))
 	}
 	return nil
 }
@@ -56,34 +72,68 @@ func (l *link) send(ctx context.Context, t *scpi.Template, args ...scpi.Arg) err
 // sendAll sends templates without placeholders in order.
 func (l *link) sendAll(ctx context.Context, ts []*scpi.Template) error {
 	for _, t := range ts {
-		if err := l.send(ctx, t); err != nil {
+		if err := l.send(ctx, seqOf(t)); err != nil {
 			return err
 		}
 	}
 	return nil
 }
 
-// query formats t and returns the number it answers.
-func (l *link) queryFloat(ctx context.Context, t *scpi.Template, args ...scpi.Arg) (float64, error) {
-	cmd, err := t.Format(args...)
-	if err != nil {
-		return 0, fmt.Errorf("%s: %w", l.role, err)
+// afterSettings waits as the profile's dialect says after a setting:
+// for the operation-complete query to answer 1, or a fixed delay.
+func (l *link) afterSettings(ctx context.Context) error {
+	switch l.dialect.WaitAfterSettings {
+	case profile.WaitOPC:
+		if err := l.sess.OperationComplete(ctx); err != nil {
+			return fmt.Errorf("%s: waiting for the settings to complete (dialect.wait_after_settings = \"opc\"): %w", l.role, err)
+		}
+	case profile.WaitDelay:
+		return sleep(ctx, l.dialect.DelayAfterSettings())
 	}
-	v, err := l.sess.QueryFloat(ctx, cmd)
+	return nil
+}
+
+// query formats s, writes all its commands but the last and returns the
+// answer to the last, a query.
+func (l *link) query(ctx context.Context, s *scpi.Seq, args ...scpi.Arg) (string, string, error) {
+	cmds, err := s.Format(args...)
 	if err != nil {
-		return 0, fmt.Errorf("%s: %s: %w", l.role, t.Key(), err)
+		return "", "", fmt.Errorf("%s: %w", l.role, err)
+	}
+	for _, cmd := range cmds[:len(cmds)-1] {
+		if err := l.sess.Write(ctx, cmd); err != nil {
+			return "", "", fmt.Errorf("%s: %s: %w", l.role, s.Key(), err)
+		}
+	}
+	last := cmds[len(cmds)-1]
+	resp, err := l.sess.Query(ctx, last)
+	if err != nil {
+		return "", last, fmt.Errorf("%s: %s: %w", l.role, s.Key(), err)
+	}
+	return resp, last, nil
+}
+
+// queryFloat formats s and returns the number it answers.
+func (l *link) queryFloat(ctx context.Context, s *scpi.Seq, args ...scpi.Arg) (float64, error) {
+	resp, last, err := l.query(ctx, s, args...)
+	if err != nil {
+		return 0, err
+	}
+	v, err := l.sess.Opts().Response.ParseNumber(resp)
+	if err != nil {
+		return 0, fmt.Errorf("%s: %s: %s: %w", l.role, s.Key(), last, err)
 	}
 	return v, nil
 }
 
-func (l *link) queryFloats(ctx context.Context, t *scpi.Template, args ...scpi.Arg) ([]float64, error) {
-	cmd, err := t.Format(args...)
+func (l *link) queryFloats(ctx context.Context, s *scpi.Seq, args ...scpi.Arg) ([]float64, error) {
+	resp, last, err := l.query(ctx, s, args...)
 	if err != nil {
-		return nil, fmt.Errorf("%s: %w", l.role, err)
+		return nil, err
 	}
-	v, err := l.sess.QueryFloats(ctx, cmd)
+	v, err := l.sess.Opts().Response.ParseNumbers(resp)
 	if err != nil {
-		return nil, fmt.Errorf("%s: %s: %w", l.role, t.Key(), err)
+		return nil, fmt.Errorf("%s: %s: %s: %w", l.role, s.Key(), last, err)
 	}
 	return v, nil
 }
@@ -117,10 +167,18 @@ func (l *link) Identify(ctx context.Context) (driver.Identity, error) {
 	return id, nil
 }
 
-// Clear sends *CLS and drains the error queue, returning what was in it.
+// Clear sends the profile's clear command (*CLS by default; nothing
+// where dialect.clear is "") and, where the instrument has an error
+// query and the profile checks errors, drains the error queue,
+// returning what was in it.
 func (l *link) Clear(ctx context.Context) ([]scpi.Error, error) {
-	if err := l.sess.Clear(ctx); err != nil {
-		return nil, fmt.Errorf("%s: %w", l.role, err)
+	if c := l.dialect.ClearCommand(); c != "" {
+		if err := l.sess.Write(ctx, c); err != nil {
+			return nil, fmt.Errorf("%s: %s: %w", l.role, c, err)
+		}
+	}
+	if !l.checkErrors || !l.sess.HasErrorQuery() {
+		return nil, nil
 	}
 	errs, err := l.sess.DrainErrors(ctx)
 	if err != nil {

@@ -35,9 +35,9 @@ func (m *meter) setCount(ctx context.Context, n int) error {
 	return nil
 }
 
-// aperture sends the integration time through whichever template the
-// profile has for it.
-func (m *meter) aperture(ctx context.Context, a driver.Aperture, nplcs []float64, minS, maxS float64, tNPLC, tAp *scpi.Template) error {
+// checkAperture says why a cannot be set with the profile's templates
+// (ErrOutOfRange), before anything is sent.
+func (m *meter) checkAperture(a driver.Aperture, nplcs []float64, minS, maxS float64, tNPLC, tAp *scpi.Seq) error {
 	switch {
 	case a.NPLC > 0 && a.Seconds > 0:
 		return fmt.Errorf("%s: aperture %g NPLC and %g s: give one of the two: %w", m.role, a.NPLC, a.Seconds, driver.ErrOutOfRange)
@@ -45,14 +45,29 @@ func (m *meter) aperture(ctx context.Context, a driver.Aperture, nplcs []float64
 		if tNPLC == nil || !containsF(nplcs, a.NPLC) {
 			return outOfRange(m.role, "aperture (NPLC)", a.NPLC, fmt.Sprintf("one of %v (profile %s)", nplcs, m.p.File))
 		}
-		return m.send(ctx, tNPLC, scpi.Num("nplc", a.NPLC))
 	case a.Seconds > 0:
 		if tAp == nil || a.Seconds < minS || a.Seconds > maxS {
 			return outOfRange(m.role, "aperture (s)", a.Seconds, fmt.Sprintf("%g to %g s (profile %s)", minS, maxS, m.p.File))
 		}
-		return m.send(ctx, tAp, scpi.Num("aperture_s", a.Seconds))
 	case a.NPLC < 0 || a.Seconds < 0:
 		return outOfRange(m.role, "aperture", a.NPLC+a.Seconds, "a positive NPLC or seconds")
+	}
+	return nil
+}
+
+// aperture sends the integration time through whichever template the
+// profile has for it.
+func (m *meter) aperture(ctx context.Context, a driver.Aperture, nplcs []float64, minS, maxS float64, tNPLC, tAp *scpi.Seq) error {
+	if err := m.checkAperture(a, nplcs, minS, maxS, tNPLC, tAp); err != nil {
+		return err
+	}
+	switch {
+	case a.NPLC > 0:
+		arg, _ := m.num("nplc", a.NPLC)
+		return m.send(ctx, tNPLC, arg)
+	case a.Seconds > 0:
+		arg, _ := m.num("aperture_s", a.Seconds)
+		return m.send(ctx, tAp, arg)
 	}
 	return nil // keep the instrument's integration time
 }
@@ -87,7 +102,7 @@ func NewDCVoltmeter(sess *scpi.Session, p *profile.DMM) (*DCVoltmeter, error) {
 	if sess == nil || p == nil {
 		return nil, fmt.Errorf("instr: NewDCVoltmeter: nil session or profile")
 	}
-	return &DCVoltmeter{meter: meter{link: link{role: "voltmeter", sess: sess, checkErrors: p.CheckErrors}, mu: newLock(), p: p}}, nil
+	return &DCVoltmeter{meter: meter{link: link{role: "voltmeter", sess: sess, checkErrors: p.CheckErrors, dialect: p.Dialect}, mu: newLock(), p: p}}, nil
 }
 
 // Setup sends the profile's init commands.
@@ -110,13 +125,18 @@ func (v *DCVoltmeter) ConfigureDC(ctx context.Context, cfg driver.DCConfig) erro
 	if !auto && (!ok || !(cfg.RangeV > 0)) {
 		return outOfRange("voltmeter", "DC range (V)", cfg.RangeV, fmt.Sprintf("more than 0, at most %g V (ranges %v, profile %s)", dc.RangesV[len(dc.RangesV)-1]*v.p.RangeHeadroom, dc.RangesV, v.p.File))
 	}
+	if err := v.checkAperture(cfg.Aperture, dc.NPLC, dc.MinApertureS, dc.MaxApertureS, t.DCSetNPLC, t.DCSetAperture); err != nil {
+		return err
+	}
 	if err := v.mu.acquire(ctx); err != nil {
 		return fmt.Errorf("voltmeter: %w", err)
 	}
 	defer v.mu.release()
 	v.rangeV = 0
-	if err := v.send(ctx, t.DCConfigure); err != nil {
-		return err
+	if t.DCConfigure != nil {
+		if err := v.send(ctx, t.DCConfigure); err != nil {
+			return err
+		}
 	}
 	v.count = 0 // CONFigure resets the trigger and sample settings (SCPI-1999 CONFigure)
 	if auto {
@@ -124,8 +144,12 @@ func (v *DCVoltmeter) ConfigureDC(ctx context.Context, cfg driver.DCConfig) erro
 			return err
 		}
 		r = 0
-	} else if err := v.send(ctx, t.DCSetRange, scpi.Num("range_v", r)); err != nil {
-		return err
+	} else if t.DCSetRange != nil {
+		arg, sent := v.num("range_v", r)
+		if err := v.send(ctx, t.DCSetRange, arg); err != nil {
+			return err
+		}
+		r = sent
 	}
 	if err := v.aperture(ctx, cfg.Aperture, dc.NPLC, dc.MinApertureS, dc.MaxApertureS, t.DCSetNPLC, t.DCSetAperture); err != nil {
 		return err
@@ -134,7 +158,17 @@ func (v *DCVoltmeter) ConfigureDC(ctx context.Context, cfg driver.DCConfig) erro
 		return err
 	}
 	v.rangeV = r
-	return nil
+	return v.afterSettings(ctx)
+}
+
+// readArgs returns the arguments a reading takes: the range, for a meter
+// that is given it with each reading.
+func (m *meter) readArgs(s *scpi.Seq, name string, rangeV float64) []scpi.Arg {
+	if !s.Has(name) {
+		return nil
+	}
+	arg, _ := m.num(name, rangeV)
+	return []scpi.Arg{arg}
 }
 
 // RangeV returns the DC range configured, volts (0 before ConfigureDC and
@@ -151,7 +185,7 @@ func (v *DCVoltmeter) ReadDC(ctx context.Context) (float64, error) {
 	if err := v.setCount(ctx, 1); err != nil {
 		return 0, err
 	}
-	return v.queryFloat(ctx, v.p.T.DCRead)
+	return v.queryFloat(ctx, v.p.T.DCRead, v.readArgs(v.p.T.DCRead, "range_v", v.rangeV)...)
 }
 
 // ReadBurst takes n readings back to back, 1 ≤ n ≤ the profile's
@@ -167,7 +201,7 @@ func (v *DCVoltmeter) ReadBurst(ctx context.Context, n int) ([]float64, error) {
 	if err := v.setCount(ctx, n); err != nil {
 		return nil, err
 	}
-	vals, err := v.queryFloats(ctx, v.p.T.DCRead)
+	vals, err := v.queryFloats(ctx, v.p.T.DCRead, v.readArgs(v.p.T.DCRead, "range_v", v.rangeV)...)
 	if err != nil {
 		return nil, err
 	}
@@ -188,6 +222,7 @@ func (v *DCVoltmeter) DCAccuracyV(readingV, rangeV float64) float64 {
 // ACVoltmeter is a DMM's AC (true-RMS) voltage function.
 type ACVoltmeter struct {
 	meter
+	rangeVrms float64 // the range configured, 0 on autorange
 }
 
 var (
@@ -205,7 +240,7 @@ func NewACVoltmeter(sess *scpi.Session, p *profile.DMM) (*ACVoltmeter, error) {
 	if p.AC == nil {
 		return nil, fmt.Errorf("instr: NewACVoltmeter: profile %s has no [ac] table", p.File)
 	}
-	return &ACVoltmeter{meter: meter{link: link{role: "dmm", sess: sess, checkErrors: p.CheckErrors}, mu: newLock(), p: p}}, nil
+	return &ACVoltmeter{meter: meter{link: link{role: "dmm", sess: sess, checkErrors: p.CheckErrors, dialect: p.Dialect}, mu: newLock(), p: p}}, nil
 }
 
 // SetRole renames the role in messages (e.g. "vin").
@@ -231,25 +266,40 @@ func (a *ACVoltmeter) ConfigureAC(ctx context.Context, cfg driver.ACConfig) erro
 	if !auto && (!ok || !(cfg.RangeVrms > 0)) {
 		return outOfRange(a.role, "AC range (Vrms)", cfg.RangeVrms, fmt.Sprintf("more than 0, at most %g Vrms (ranges %v, profile %s)", ac.RangesVrms[len(ac.RangesVrms)-1]*a.p.RangeHeadroom, ac.RangesVrms, a.p.File))
 	}
+	if err := a.checkAperture(cfg.Aperture, ac.NPLC, ac.MinApertureS, ac.MaxApertureS, t.ACSetNPLC, t.ACSetAperture); err != nil {
+		return err
+	}
 	if err := a.mu.acquire(ctx); err != nil {
 		return fmt.Errorf("%s: %w", a.role, err)
 	}
 	defer a.mu.release()
-	if err := a.send(ctx, t.ACConfigure); err != nil {
-		return err
+	if t.ACConfigure != nil {
+		if err := a.send(ctx, t.ACConfigure); err != nil {
+			return err
+		}
 	}
 	a.count = 0
+	a.rangeVrms = 0
 	if auto {
 		if err := a.send(ctx, t.ACSetAutoRange); err != nil {
 			return err
 		}
-	} else if err := a.send(ctx, t.ACSetRange, scpi.Num("range_vrms", r)); err != nil {
-		return err
+		r = 0
+	} else if t.ACSetRange != nil {
+		arg, sent := a.num("range_vrms", r)
+		if err := a.send(ctx, t.ACSetRange, arg); err != nil {
+			return err
+		}
+		r = sent
 	}
 	if err := a.aperture(ctx, cfg.Aperture, ac.NPLC, ac.MinApertureS, ac.MaxApertureS, t.ACSetNPLC, t.ACSetAperture); err != nil {
 		return err
 	}
-	return a.setCount(ctx, 1)
+	if err := a.setCount(ctx, 1); err != nil {
+		return err
+	}
+	a.rangeVrms = r
+	return a.afterSettings(ctx)
 }
 
 // ReadAC takes one reading, Vrms.
@@ -261,7 +311,7 @@ func (a *ACVoltmeter) ReadAC(ctx context.Context) (float64, error) {
 	if err := a.setCount(ctx, 1); err != nil {
 		return 0, err
 	}
-	return a.queryFloat(ctx, a.p.T.ACRead)
+	return a.queryFloat(ctx, a.p.T.ACRead, a.readArgs(a.p.T.ACRead, "range_vrms", a.rangeVrms)...)
 }
 
 // LineHz returns the power-line frequency of the profile.

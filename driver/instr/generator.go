@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"strings"
 	"time"
 
 	"rolloff/driver"
@@ -24,10 +25,13 @@ type Generator struct {
 	p   *profile.Generator
 	lim driver.GeneratorLimits
 
-	// The last settings sent (guarded by mu), for templates that carry
-	// several parameters: ampSet is false until the first amplitude.
+	// The last settings sent (guarded by mu), as the instrument
+	// received them (rounded to the profile's digits), for templates that
+	// carry several parameters: ampSet is false until the first
+	// amplitude. sentVrms is the amplitude at the DUT they give.
 	freqHz, amplitude float64
 	freqSet, ampSet   bool
+	sentVrms          float64
 }
 
 var (
@@ -49,7 +53,7 @@ func NewGenerator(sess *scpi.Session, p *profile.Generator, bench driver.Generat
 		return nil, err
 	}
 	return &Generator{
-		link: link{role: "generator", sess: sess, checkErrors: p.Commands.CheckErrors},
+		link: link{role: "generator", sess: sess, checkErrors: p.Commands.CheckErrors, dialect: p.Dialect},
 		mu:   newLock(),
 		p:    p,
 		lim:  lim,
@@ -73,57 +77,98 @@ func (g *Generator) Setup(ctx context.Context) error {
 	if err := g.sendAll(ctx, t.Init); err != nil {
 		return err
 	}
-	if err := g.send(ctx, t.FunctionSine); err != nil {
+	if err := g.sendGen(ctx, t.FunctionSine); err != nil {
 		return err
 	}
 	if t.SetUnit != nil {
-		if err := g.send(ctx, t.SetUnit, scpi.Word("unit", g.p.Output.UnitWord())); err != nil {
+		if err := g.sendGen(ctx, t.SetUnit, scpi.Word("unit", g.p.Output.UnitWord())); err != nil {
 			return err
 		}
 	}
 	if t.SetLoad != nil {
 		arg := scpi.Word("load", "INFinity")
 		if r := g.p.Output.LoadOhms(); !math.IsInf(r, 1) {
-			arg = scpi.Num("load", r)
+			arg, _ = g.num("load", r)
 		}
-		if err := g.send(ctx, t.SetLoad, arg); err != nil {
+		if err := g.sendGen(ctx, t.SetLoad, arg); err != nil {
 			return err
 		}
 	}
 	if t.SetOffset != nil {
-		if err := g.send(ctx, t.SetOffset, scpi.Num("offset_v", g.p.Output.OffsetV)); err != nil {
+		if err := g.sendGen(ctx, t.SetOffset); err != nil {
 			return err
 		}
 	}
-	return nil
+	return g.afterSettings(ctx)
 }
 
-// args returns the arguments t takes among the frequency, amplitude and
-// offset, from the settings last sent (the smallest amplitude the limits
-// allow before the first one).
-func (g *Generator) args(t *scpi.Template, freqHz, amplitude float64) []scpi.Arg {
+// genArgs returns the generator parameters s carries, from the settings
+// last sent: the frequency (before the first, 1 kHz within the limits),
+// the amplitude (before the first, the smallest the limits allow) and
+// the offset, each rounded as the profile sends numbers.
+func (g *Generator) genArgs(s *scpi.Seq, freqHz, amplitude float64) []scpi.Arg {
 	var out []scpi.Arg
-	for _, n := range t.Placeholders() {
+	for _, n := range s.Placeholders() {
+		var a scpi.Arg
 		switch n {
 		case "freq_hz":
-			out = append(out, scpi.Num(n, freqHz))
+			a, _ = g.num(n, freqHz)
 		case "amplitude":
-			out = append(out, scpi.Num(n, amplitude))
+			a, _ = g.num(n, amplitude)
 		case "offset_v":
-			out = append(out, scpi.Num(n, g.p.Output.OffsetV))
+			// Toward zero: the offset counts against the amplitude
+			// limit, and rounding must not add to it.
+			a, _ = g.num(n, g.dialect.NumberFormat().TowardZero(g.p.Output.OffsetV))
+		default:
+			continue
 		}
+		out = append(out, a)
 	}
 	return out
 }
 
+// defaults returns the frequency and amplitude to fill a command with
+// before they have been set; ok is false when a command carries
+// {amplitude} and there is no lowest level to send.
+func (g *Generator) defaults(s *scpi.Seq) (freqHz, amplitude float64, err error) {
+	return g.defaultsFor(s, s.Has("amplitude"))
+}
+
+// defaultsFor is defaults; needAmp says whether the amplitude last sent
+// is needed (false when the caller supplies it).
+func (g *Generator) defaultsFor(s *scpi.Seq, needAmp bool) (freqHz, amplitude float64, err error) {
+	freqHz, amplitude = g.freqHz, g.amplitude
+	if !g.freqSet {
+		freqHz = math.Max(g.lim.MinFreqHz, math.Min(1000, g.lim.MaxFreqHz))
+	}
+	if !g.ampSet && needAmp {
+		var ok bool
+		if amplitude, ok = g.lowestAmplitude(); !ok {
+			return 0, 0, fmt.Errorf("generator: %s carries {amplitude}: set the amplitude first (the profile gives no lowest level in %s): %w",
+				s.Key(), g.p.Output.Unit, driver.ErrOutOfRange)
+		}
+	}
+	return freqHz, amplitude, nil
+}
+
+// sendGen sends s with extra arguments and whichever generator
+// parameters it carries, from the settings last sent.
+func (g *Generator) sendGen(ctx context.Context, s *scpi.Seq, extra ...scpi.Arg) error {
+	f, a, err := g.defaults(s)
+	if err != nil {
+		return err
+	}
+	return g.send(ctx, s, append(extra, g.genArgs(s, f, a)...)...)
+}
+
 // lowestAmplitude is the amplitude sent before the first SetAmplitude by
-// a frequency template that carries {amplitude}: the smallest level the
-// limits allow, in the instrument's unit. ok is false when there is no
-// such level (dBm with no lower limit): the caller must then refuse.
+// a command that carries {amplitude}: the smallest level the limits
+// allow, in the instrument's unit. ok is false when there is no such
+// level (dBm with no lower limit): the caller must then refuse.
 func (g *Generator) lowestAmplitude() (a float64, ok bool) {
 	a = g.InstrumentAmplitude(g.lim.MinVrms)
 	if !math.IsNaN(a) && !math.IsInf(a, 0) {
-		return a, true
+		return g.dialect.NumberFormat().Ceil(a), true
 	}
 	if m := g.p.Limits.MinAmplitude; m != nil {
 		return *m, true
@@ -131,7 +176,8 @@ func (g *Generator) lowestAmplitude() (a float64, ok bool) {
 	return 0, false
 }
 
-// SetFrequency sets the sine frequency in hertz.
+// SetFrequency sets the sine frequency in hertz. The instrument receives
+// it rounded to the profile's digits: SentFrequencyHz returns that value.
 func (g *Generator) SetFrequency(ctx context.Context, freqHz float64) error {
 	if !(freqHz >= g.lim.MinFreqHz && freqHz <= g.lim.MaxFreqHz) {
 		return outOfRange("generator", "frequency (Hz)", freqHz, fmt.Sprintf("%g to %g Hz", g.lim.MinFreqHz, g.lim.MaxFreqHz))
@@ -141,22 +187,27 @@ func (g *Generator) SetFrequency(ctx context.Context, freqHz float64) error {
 	}
 	defer g.mu.release()
 	t := g.p.T.SetFrequency
-	amp := g.amplitude
-	if !g.ampSet && hasArg(t, "amplitude") {
-		var ok bool
-		if amp, ok = g.lowestAmplitude(); !ok {
-			return fmt.Errorf("generator: %s carries {amplitude}: set the amplitude before the first frequency (the profile gives no lowest level in %s): %w",
-				t.Key(), g.p.Output.Unit, driver.ErrOutOfRange)
-		}
-	}
-	if err := g.send(ctx, t, g.args(t, freqHz, amp)...); err != nil {
+	_, amp, err := g.defaults(t)
+	if err != nil {
 		return err
 	}
-	g.freqHz, g.freqSet = freqHz, true
-	return g.readBack(ctx, true, hasArg(t, "amplitude"), freqHz, amp)
+	_, sent := g.num("freq_hz", freqHz)
+	if err := g.send(ctx, t, g.genArgs(t, freqHz, amp)...); err != nil {
+		return err
+	}
+	g.freqHz, g.freqSet = sent, true
+	if t.Has("amplitude") {
+		g.noteAmplitude(amp)
+	}
+	if err := g.afterSettings(ctx); err != nil {
+		return err
+	}
+	return g.readBack(ctx, true, t.Has("amplitude"), sent, g.round(amp))
 }
 
-// SetAmplitude sets the amplitude, Vrms at the DUT input.
+// SetAmplitude sets the amplitude, Vrms at the DUT input. The instrument
+// receives it in its unit rounded to the profile's digits:
+// SentAmplitudeVrms returns the Vrms at the DUT that gives.
 func (g *Generator) SetAmplitude(ctx context.Context, vrms float64) error {
 	if !(vrms >= g.lim.MinVrms && vrms <= g.lim.MaxVrms) {
 		return outOfRange("generator", "amplitude (Vrms at the DUT)", vrms, fmt.Sprintf("%g to %g Vrms", g.lim.MinVrms, g.lim.MaxVrms))
@@ -170,18 +221,72 @@ func (g *Generator) SetAmplitude(ctx context.Context, vrms float64) error {
 	}
 	defer g.mu.release()
 	t := g.p.T.SetAmplitude
-	f := g.freqHz
-	if hasArg(t, "freq_hz") && !g.freqSet {
-		f = math.Max(g.lim.MinFreqHz, math.Min(1000, g.lim.MaxFreqHz))
-	}
-	if err := g.send(ctx, t, g.args(t, f, a)...); err != nil {
+	f, _, err := g.defaultsFor(t, false)
+	if err != nil {
 		return err
 	}
-	g.amplitude, g.ampSet = a, true
-	if hasArg(t, "freq_hz") {
-		g.freqHz, g.freqSet = f, true
+	a = g.sentLevel(a)
+	if err := g.send(ctx, t, g.genArgs(t, f, a)...); err != nil {
+		return err
 	}
-	return g.readBack(ctx, hasArg(t, "freq_hz"), true, f, a)
+	g.noteAmplitude(a)
+	if t.Has("freq_hz") {
+		g.freqHz, g.freqSet = g.round(f), true
+	}
+	if err := g.afterSettings(ctx); err != nil {
+		return err
+	}
+	return g.readBack(ctx, t.Has("freq_hz"), true, g.round(f), g.round(a))
+}
+
+// sentLevel is the amplitude a (instrument unit) as sent: rounded to the
+// profile's digits toward the lower level, so that a level at the
+// limit never goes over it by a digit; toward the higher one only where
+// the lower would fall under the smallest level allowed.
+func (g *Generator) sentLevel(a float64) float64 {
+	nf := g.dialect.NumberFormat()
+	s := nf.Floor(a)
+	if g.p.Output.DUTVrms(g.p.Output.FromUnit(s)) < g.lim.MinVrms*(1-1e-9) {
+		s = nf.Ceil(a)
+	}
+	return s
+}
+
+// round is the value the instrument receives for v.
+func (g *Generator) round(v float64) float64 { return g.dialect.NumberFormat().Round(v) }
+
+// noteAmplitude records amplitude a (instrument unit, before rounding)
+// as sent.
+func (g *Generator) noteAmplitude(a float64) {
+	g.amplitude, g.ampSet = g.round(a), true
+	g.sentVrms = g.p.Output.DUTVrms(g.p.Output.FromUnit(g.amplitude))
+}
+
+// SentFrequencyHz returns the frequency the instrument last received
+// (rounded to the profile's digits), 0 before the first.
+func (g *Generator) SentFrequencyHz() float64 {
+	if err := g.mu.acquire(context.Background()); err != nil {
+		return 0
+	}
+	defer g.mu.release()
+	if !g.freqSet {
+		return 0
+	}
+	return g.freqHz
+}
+
+// SentAmplitudeVrms returns the amplitude at the DUT, Vrms, that the
+// value the instrument last received gives (the requested amplitude
+// rounded as sent), 0 before the first.
+func (g *Generator) SentAmplitudeVrms() float64 {
+	if err := g.mu.acquire(context.Background()); err != nil {
+		return 0
+	}
+	defer g.mu.release()
+	if !g.ampSet {
+		return 0
+	}
+	return g.sentVrms
 }
 
 // InstrumentAmplitude returns the value the amplitude command is given for
@@ -197,16 +302,22 @@ func (g *Generator) SetOutput(ctx context.Context, on bool) error {
 		return fmt.Errorf("generator: %w", err)
 	}
 	defer g.mu.release()
+	s := g.p.T.OutputOff
 	if on {
-		return g.send(ctx, g.p.T.OutputOn)
+		s = g.p.T.OutputOn
 	}
-	return g.send(ctx, g.p.T.OutputOff)
+	if err := g.sendGen(ctx, s); err != nil {
+		return err
+	}
+	return g.afterSettings(ctx)
 }
 
-// Halt switches the output off and waits for the instrument to confirm it
-// has executed the command (*OPC?, IEEE 488.2 §10.19). It uses its own
-// time-out (HaltTimeout), so it works after the caller's context is
-// cancelled.
+// Halt switches the output off and confirms it: with the profile's
+// operation-complete query (*OPC?, IEEE 488.2 §10.19) where it has one,
+// else by reading the output state back (commands.query_output), else
+// by waiting dialect.delay_after_settings_s (at least 100 ms). It uses
+// its own time-out (HaltTimeout), so it works after the caller's
+// context is cancelled.
 //
 // Halt does not wait for a configuration sequence in progress on another
 // goroutine: it goes in between two of its commands (the session
@@ -215,17 +326,70 @@ func (g *Generator) SetOutput(ctx context.Context, on bool) error {
 func (g *Generator) Halt() error {
 	ctx, cancel := context.WithTimeout(context.Background(), HaltTimeout)
 	defer cancel()
-	cmd, err := g.p.T.OutputOff.Format()
+	s := g.p.T.OutputOff
+	var args []scpi.Arg
+	if len(s.Placeholders()) > 0 {
+		// An output-off command carrying the generator's parameters
+		// (rare): the settings last sent, read without the role's lock
+		// so that a halt never waits for a setting in progress.
+		f, a := g.freqHz, g.amplitude
+		if !g.freqSet {
+			f = math.Max(g.lim.MinFreqHz, math.Min(1000, g.lim.MaxFreqHz))
+		}
+		if !g.ampSet {
+			a, _ = g.lowestAmplitude()
+		}
+		args = g.genArgs(s, f, a)
+	}
+	cmds, err := s.Format(args...)
 	if err != nil {
 		return fmt.Errorf("generator: halt: %w", err)
 	}
-	if err := g.sess.Write(ctx, cmd); err != nil {
-		return fmt.Errorf("generator: halt: %w", err)
+	for _, cmd := range cmds {
+		if err := g.sess.Write(ctx, cmd); err != nil {
+			return fmt.Errorf("generator: halt: %w", err)
+		}
 	}
-	if err := g.sess.OperationComplete(ctx); err != nil {
-		return fmt.Errorf("generator: halt: %s sent, not confirmed: %w", cmd, err)
+	sent := strings.Join(cmds, " then ")
+	switch {
+	case g.sess.HasOPCQuery():
+		if err := g.sess.OperationComplete(ctx); err != nil {
+			return fmt.Errorf("generator: halt: %s sent, not confirmed: %w", sent, err)
+		}
+	case g.p.T.QueryOutput != nil:
+		resp, _, err := g.query(ctx, g.p.T.QueryOutput)
+		if err != nil {
+			return fmt.Errorf("generator: halt: %s sent, output state not read back: %w", sent, err)
+		}
+		if on, ok := outputState(resp); !ok || on {
+			return fmt.Errorf("generator: halt: %s sent, but %s answers %q, not off: %w", sent, g.p.T.QueryOutput.Key(), resp, driver.ErrInstrument)
+		}
+	default:
+		d := g.dialect.DelayAfterSettings()
+		if d < minHaltDelay {
+			d = minHaltDelay
+		}
+		if err := sleep(ctx, d); err != nil {
+			return fmt.Errorf("generator: halt: %s sent, waiting: %w", sent, err)
+		}
 	}
 	return nil
+}
+
+// minHaltDelay is the least wait that confirms a halt on an instrument
+// that can neither report completion nor its output state.
+const minHaltDelay = 100 * time.Millisecond
+
+// outputState reads an output-state answer: 1/ON or 0/OFF (SCPI-1999
+// boolean response, NR1).
+func outputState(resp string) (on, ok bool) {
+	switch strings.ToUpper(strings.TrimSpace(resp)) {
+	case "1", "ON", "+1":
+		return true, true
+	case "0", "OFF", "+0":
+		return false, true
+	}
+	return false, false
 }
 
 // GeneratorLimitsFor returns the settings a generator of profile p
@@ -264,3 +428,5 @@ func GeneratorLimitsFor(p *profile.Generator, bench driver.GeneratorLimits) (dri
 	}
 	return lim, nil
 }
+
+var _ driver.SentSettings = (*Generator)(nil)

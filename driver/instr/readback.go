@@ -6,7 +6,6 @@ import (
 	"math"
 
 	"rolloff/driver"
-	"rolloff/driver/scpi"
 )
 
 // ReadbackError is a generator setting read back different from what was
@@ -31,18 +30,6 @@ func (e *ReadbackError) Error() string {
 
 // Unwrap returns driver.ErrReadback.
 func (e *ReadbackError) Unwrap() error { return driver.ErrReadback }
-
-func hasArg(t *scpi.Template, name string) bool {
-	if t == nil {
-		return false
-	}
-	for _, n := range t.Placeholders() {
-		if n == name {
-			return true
-		}
-	}
-	return false
-}
 
 // readBack queries the frequency and/or amplitude where the profile has
 // a query for them and compares with what was sent (amplitude in the
@@ -77,7 +64,7 @@ func (g *Generator) readBack(ctx context.Context, freq, amp bool, freqHz, amplit
 
 func (g *Generator) mismatch(ctx context.Context, key, what string, sent, got, tol float64) error {
 	e := &ReadbackError{Key: key, Quantity: what, Sent: sent, Got: got, TolRel: tol}
-	if err := g.send(ctx, g.p.T.OutputOff); err != nil {
+	if err := g.sendGen(ctx, g.p.T.OutputOff); err != nil {
 		e.OffErr = err
 	}
 	return e

@@ -27,7 +27,7 @@ func NewSwitch(sess *scpi.Session, p *profile.Switch) (*Switch, error) {
 	if sess == nil || p == nil {
 		return nil, fmt.Errorf("instr: NewSwitch: nil session or profile")
 	}
-	return &Switch{link: link{role: "switch", sess: sess, checkErrors: p.CheckErrors}, mu: newLock(), p: p}, nil
+	return &Switch{link: link{role: "switch", sess: sess, checkErrors: p.CheckErrors, dialect: p.Dialect}, mu: newLock(), p: p}, nil
 }
 
 // Profile returns the switch's profile.

@@ -137,6 +137,7 @@ func (c IdentityCheck) validate(p *problems) {
 func decodeStrict(file string, data []byte, v any) error {
 	d := toml.NewDecoder(bytes.NewReader(data))
 	d.DisallowUnknownFields()
+	d.EnableUnmarshalerInterface() // Cmds: a command or a list
 	if err := d.Decode(v); err != nil {
 		return decodeErrorIn(file, data, err, v)
 	}

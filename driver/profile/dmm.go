@@ -3,6 +3,7 @@ package profile
 import (
 	"fmt"
 	"sort"
+	"strings"
 
 	"rolloff/driver/scpi"
 )
@@ -16,6 +17,8 @@ type DMM struct {
 	Name     string        `toml:"name"`
 	Framing  Framing       `toml:"framing"`
 	Identity IdentityCheck `toml:"identity"`
+	Dialect  Dialect       `toml:"dialect"`
+	Response Response      `toml:"response"`
 	// LineHz is the power-line frequency NPLC apertures refer to: 50 or 60.
 	LineHz float64 `toml:"line_hz"`
 	// Init is sent in order after the instrument is cleared.
@@ -23,7 +26,7 @@ type DMM struct {
 	// CheckErrors reads the error queue after configuring.
 	CheckErrors bool `toml:"check_errors"`
 	// SetSampleCount sets how many readings one read returns; {count}.
-	SetSampleCount string `toml:"set_sample_count"`
+	SetSampleCount Cmds `toml:"set_sample_count"`
 	// MaxSamples is the largest burst (sample count). Default 1 (no bursts).
 	MaxSamples int `toml:"max_samples"`
 	// RangeHeadroom is how far past its nominal full scale a range reads,
@@ -46,18 +49,22 @@ type DMMDC struct {
 	MinApertureS float64 `toml:"min_aperture_s"`
 	MaxApertureS float64 `toml:"max_aperture_s"`
 	// Configure selects the DC voltage function. No placeholders.
-	Configure string `toml:"configure"`
-	// SetRange sets the range; {range_v} in volts.
-	SetRange string `toml:"set_range"`
+	// Optional (a meter that answers MEASure only needs none).
+	Configure Cmds `toml:"configure"`
+	// SetRange sets the range; {range_v} in volts. Optional when Read
+	// carries {range_v} itself (MEASure:VOLTage:DC? {range_v}).
+	SetRange Cmds `toml:"set_range"`
 	// SetAutoRange selects autorange, for a configuration with range 0.
 	// No placeholders. Optional.
-	SetAutoRange string `toml:"set_auto_range"`
+	SetAutoRange Cmds `toml:"set_auto_range"`
 	// SetNPLC sets the integration time; {nplc}. Optional.
-	SetNPLC string `toml:"set_nplc"`
+	SetNPLC Cmds `toml:"set_nplc"`
 	// SetAperture sets the integration time; {aperture_s}. Optional.
-	SetAperture string `toml:"set_aperture"`
-	// Read triggers and returns the reading(s), comma-separated.
-	Read string `toml:"read"`
+	SetAperture Cmds `toml:"set_aperture"`
+	// Read triggers and returns the reading(s), comma-separated: one
+	// query, or a list of commands whose last is the query (INITiate,
+	// FETCh?). It may carry {range_v}.
+	Read Cmds `toml:"read"`
 	// Accuracy is the DC specification per range.
 	Accuracy []DCAccuracy `toml:"accuracy"`
 }
@@ -76,30 +83,30 @@ type DMMAC struct {
 	NPLC         []float64 `toml:"nplc"`
 	MinApertureS float64   `toml:"min_aperture_s"`
 	MaxApertureS float64   `toml:"max_aperture_s"`
-	Configure    string    `toml:"configure"`
-	SetRange     string    `toml:"set_range"` // {range_vrms}
-	SetAutoRange string    `toml:"set_auto_range"`
-	SetNPLC      string    `toml:"set_nplc"`
-	SetAperture  string    `toml:"set_aperture"`
-	Read         string    `toml:"read"`
+	Configure    Cmds      `toml:"configure"`
+	SetRange     Cmds      `toml:"set_range"` // {range_vrms}
+	SetAutoRange Cmds      `toml:"set_auto_range"`
+	SetNPLC      Cmds      `toml:"set_nplc"`
+	SetAperture  Cmds      `toml:"set_aperture"`
+	Read         Cmds      `toml:"read"`
 }
 
 // DMMTmpl are the compiled DMM templates. Optional ones are nil.
 type DMMTmpl struct {
 	Init           []*scpi.Template
-	SetSampleCount *scpi.Template
-	DCConfigure    *scpi.Template
-	DCSetRange     *scpi.Template
-	DCSetAutoRange *scpi.Template
-	DCSetNPLC      *scpi.Template
-	DCSetAperture  *scpi.Template
-	DCRead         *scpi.Template
-	ACConfigure    *scpi.Template
-	ACSetRange     *scpi.Template
-	ACSetAutoRange *scpi.Template
-	ACSetNPLC      *scpi.Template
-	ACSetAperture  *scpi.Template
-	ACRead         *scpi.Template
+	SetSampleCount *scpi.Seq
+	DCConfigure    *scpi.Seq
+	DCSetRange     *scpi.Seq
+	DCSetAutoRange *scpi.Seq
+	DCSetNPLC      *scpi.Seq
+	DCSetAperture  *scpi.Seq
+	DCRead         *scpi.Seq
+	ACConfigure    *scpi.Seq
+	ACSetRange     *scpi.Seq
+	ACSetAutoRange *scpi.Seq
+	ACSetNPLC      *scpi.Seq
+	ACSetAperture  *scpi.Seq
+	ACRead         *scpi.Seq
 }
 
 const maxSamples = 100000
@@ -125,6 +132,8 @@ func (d *DMM) validate(p *problems) {
 	checkKind(p, d.Kind, KindDMM)
 	d.Framing.validate(p)
 	d.Identity.validate(p)
+	d.Dialect.validate(p, d.CheckErrors)
+	d.Response.validate(p)
 	if d.LineHz != 50 && d.LineHz != 60 {
 		p.add("line_hz", d.LineHz, "50 or 60", "bad power-line frequency")
 	}
@@ -142,15 +151,19 @@ func (d *DMM) validate(p *problems) {
 	}
 	t := &d.T
 	t.Init = compileList(p, "init", d.Init)
-	t.SetSampleCount = compileTemplate(p, "set_sample_count", d.SetSampleCount, d.MaxSamples > 1, "count")
+	t.SetSampleCount = compileSeq(p, "set_sample_count", d.SetSampleCount, d.MaxSamples > 1, "count")
 	validateRanges(p, "dc.ranges_v", d.DC.RangesV, 1e-3, 1e4)
 	validateAperture(p, "dc", d.DC.NPLC, d.DC.MinApertureS, d.DC.MaxApertureS)
-	t.DCConfigure = compileTemplate(p, "dc.configure", d.DC.Configure, true)
-	t.DCSetRange = compileTemplate(p, "dc.set_range", d.DC.SetRange, true, "range_v")
-	t.DCSetAutoRange = compileTemplate(p, "dc.set_auto_range", d.DC.SetAutoRange, false)
-	t.DCSetNPLC = compileTemplate(p, "dc.set_nplc", d.DC.SetNPLC, len(d.DC.NPLC) > 0, "nplc")
-	t.DCSetAperture = compileTemplate(p, "dc.set_aperture", d.DC.SetAperture, d.DC.MaxApertureS > 0, "aperture_s")
-	t.DCRead = compileTemplate(p, "dc.read", d.DC.Read, true)
+	t.DCConfigure = compileSeq(p, "dc.configure", d.DC.Configure, false)
+	dcRangeInRead := readCarries(d.DC.Read, "range_v")
+	t.DCSetRange = compileSeq(p, "dc.set_range", d.DC.SetRange, !dcRangeInRead, "range_v")
+	t.DCSetAutoRange = compileSeq(p, "dc.set_auto_range", d.DC.SetAutoRange, false)
+	t.DCSetNPLC = compileSeq(p, "dc.set_nplc", d.DC.SetNPLC, len(d.DC.NPLC) > 0, "nplc")
+	t.DCSetAperture = compileSeq(p, "dc.set_aperture", d.DC.SetAperture, d.DC.MaxApertureS > 0, "aperture_s")
+	t.DCRead = compileQuerySeq(p, "dc.read", d.DC.Read, true, placeholdersIf(dcRangeInRead, "range_v")...)
+	if dcRangeInRead && !d.DC.SetAutoRange.Empty() {
+		p.add("dc.set_auto_range", cmdsValue(d.DC.SetAutoRange), `"" when dc.read carries {range_v} (the range goes with each reading)`, "autorange and a range in every reading")
+	}
 	for i, a := range d.DC.Accuracy {
 		k := fmt.Sprintf("dc.accuracy[%d]", i)
 		if !contains(d.DC.RangesV, a.RangeV) {
@@ -166,13 +179,36 @@ func (d *DMM) validate(p *problems) {
 	if ac := d.AC; ac != nil {
 		validateRanges(p, "ac.ranges_vrms", ac.RangesVrms, 1e-3, 1e4)
 		validateAperture(p, "ac", ac.NPLC, ac.MinApertureS, ac.MaxApertureS)
-		t.ACConfigure = compileTemplate(p, "ac.configure", ac.Configure, true)
-		t.ACSetRange = compileTemplate(p, "ac.set_range", ac.SetRange, true, "range_vrms")
-		t.ACSetAutoRange = compileTemplate(p, "ac.set_auto_range", ac.SetAutoRange, false)
-		t.ACSetNPLC = compileTemplate(p, "ac.set_nplc", ac.SetNPLC, len(ac.NPLC) > 0, "nplc")
-		t.ACSetAperture = compileTemplate(p, "ac.set_aperture", ac.SetAperture, ac.MaxApertureS > 0, "aperture_s")
-		t.ACRead = compileTemplate(p, "ac.read", ac.Read, true)
+		t.ACConfigure = compileSeq(p, "ac.configure", ac.Configure, false)
+		acRangeInRead := readCarries(ac.Read, "range_vrms")
+		t.ACSetRange = compileSeq(p, "ac.set_range", ac.SetRange, !acRangeInRead, "range_vrms")
+		t.ACSetAutoRange = compileSeq(p, "ac.set_auto_range", ac.SetAutoRange, false)
+		t.ACSetNPLC = compileSeq(p, "ac.set_nplc", ac.SetNPLC, len(ac.NPLC) > 0, "nplc")
+		t.ACSetAperture = compileSeq(p, "ac.set_aperture", ac.SetAperture, ac.MaxApertureS > 0, "aperture_s")
+		t.ACRead = compileQuerySeq(p, "ac.read", ac.Read, true, placeholdersIf(acRangeInRead, "range_vrms")...)
+		if acRangeInRead && !ac.SetAutoRange.Empty() {
+			p.add("ac.set_auto_range", cmdsValue(ac.SetAutoRange), `"" when ac.read carries {range_vrms} (the range goes with each reading)`, "autorange and a range in every reading")
+		}
 	}
+}
+
+// readCarries reports whether a reading's commands carry {name}: a
+// meter that takes its range with each reading (MEASure:VOLTage:DC?
+// {range_v}) needs no set_range.
+func readCarries(c Cmds, name string) bool {
+	for _, s := range c {
+		if strings.Contains(s, "{"+name+"}") {
+			return true
+		}
+	}
+	return false
+}
+
+func placeholdersIf(ok bool, names ...string) []string {
+	if ok {
+		return names
+	}
+	return nil
 }
 
 // DCAccuracyV returns the half-width of the DC specification in volts for

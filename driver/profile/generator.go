@@ -16,6 +16,8 @@ type Generator struct {
 	Name     string                   `toml:"name"`
 	Framing  Framing                  `toml:"framing"`
 	Identity IdentityCheck            `toml:"identity"`
+	Dialect  Dialect                  `toml:"dialect"`
+	Response Response                 `toml:"response"`
 	Limits   GeneratorInstrumentLimit `toml:"limits"`
 	Output   GeneratorOutput          `toml:"output"`
 	Commands GeneratorCommands        `toml:"commands"`
@@ -168,37 +170,47 @@ type GeneratorCommands struct {
 	// configuration. No placeholders.
 	Init []string `toml:"init"`
 	// FunctionSine selects a sine wave. No placeholders.
-	FunctionSine string `toml:"function_sine"`
+	FunctionSine Cmds `toml:"function_sine"`
 	// SetUnit selects the amplitude unit; {unit} is VRMS, VPP or DBM.
 	// Optional: without it the instrument must already use Output.Unit.
-	SetUnit string `toml:"set_unit"`
+	SetUnit Cmds `toml:"set_unit"`
 	// SetLoad tells the instrument its load; {load} is the number of ohms
 	// or INFinity for hi-z. Optional.
-	SetLoad string `toml:"set_load"`
+	SetLoad Cmds `toml:"set_load"`
 	// SetFrequency sets the frequency; {freq_hz} in hertz. It may also
 	// carry {amplitude} and {offset_v} (an apply-style command setting
 	// them together): rolloff fills them with the amplitude it last set
 	// (or the smallest it may set, before the first) and the offset.
-	SetFrequency string `toml:"set_frequency"`
+	SetFrequency Cmds `toml:"set_frequency"`
 	// SetAmplitude sets the amplitude; {amplitude} in Output.Unit. It may
 	// also carry {freq_hz} and {offset_v}.
-	SetAmplitude string `toml:"set_amplitude"`
+	SetAmplitude Cmds `toml:"set_amplitude"`
 	// SetOffset sets the DC offset; {offset_v} is Output.OffsetV.
 	// Optional; sent once at set-up.
-	SetOffset string `toml:"set_offset"`
+	//
+	// Every command may be one command or a list sent in order, and may
+	// carry any of {freq_hz}, {amplitude} and {offset_v}, filled with the
+	// settings last sent (before the first amplitude, the smallest the
+	// limits allow). An apply-style command (APPLy..., or one carrying
+	// two of them) must carry all three, or the profile is refused.
+	SetOffset Cmds `toml:"set_offset"`
 	// QueryFrequency and QueryAmplitude read the frequency (hertz) and
 	// the amplitude (in Output.Unit) back. Optional: where given, every
 	// setting is read back and a difference beyond ReadbackTolerance
 	// switches the output off and fails the run.
-	QueryFrequency string `toml:"query_frequency"`
-	QueryAmplitude string `toml:"query_amplitude"`
+	QueryFrequency Cmds `toml:"query_frequency"`
+	QueryAmplitude Cmds `toml:"query_amplitude"`
 	// ReadbackTolerance is the relative difference allowed between a
 	// setting and its read-back (default 2e-3, which covers an instrument
 	// rounding dBm to 0.01 dB; 1e-9 to 0.1).
 	ReadbackTolerance float64 `toml:"readback_tolerance"`
 	// OutputOn and OutputOff switch the output. No placeholders.
-	OutputOn  string `toml:"output_on"`
-	OutputOff string `toml:"output_off"`
+	OutputOn  Cmds `toml:"output_on"`
+	OutputOff Cmds `toml:"output_off"`
+	// QueryOutput reads the output state back (1 or ON when on).
+	// Optional: where the instrument has no operation-complete query,
+	// a halt is confirmed by reading the output state back with it.
+	QueryOutput Cmds `toml:"query_output"`
 	// CheckErrors reads the error queue (SYSTem:ERRor?) after
 	// configuring; an entry there fails the configuration.
 	CheckErrors bool `toml:"check_errors"`
@@ -208,16 +220,17 @@ type GeneratorCommands struct {
 // templates are nil when absent.
 type GeneratorTemplates struct {
 	Init         []*scpi.Template
-	FunctionSine *scpi.Template
-	SetUnit      *scpi.Template
-	SetLoad      *scpi.Template
-	SetFrequency *scpi.Template
-	SetAmplitude *scpi.Template
-	SetOffset    *scpi.Template
-	QueryFreq    *scpi.Template
-	QueryAmpl    *scpi.Template
-	OutputOn     *scpi.Template
-	OutputOff    *scpi.Template
+	FunctionSine *scpi.Seq
+	SetUnit      *scpi.Seq
+	SetLoad      *scpi.Seq
+	SetFrequency *scpi.Seq
+	SetAmplitude *scpi.Seq
+	SetOffset    *scpi.Seq
+	QueryFreq    *scpi.Seq
+	QueryAmpl    *scpi.Seq
+	OutputOn     *scpi.Seq
+	OutputOff    *scpi.Seq
+	QueryOutput  *scpi.Seq
 }
 
 // Generator amplitude and frequency bounds accepted in a profile.
@@ -247,6 +260,8 @@ func (g *Generator) validate(p *problems) {
 	checkKind(p, g.Kind, KindGenerator)
 	g.Framing.validate(p)
 	g.Identity.validate(p)
+	g.Dialect.validate(p, g.Commands.CheckErrors)
+	g.Response.validate(p)
 	o := &g.Output
 	switch o.Unit {
 	case UnitVrms, UnitVpp, UnitDBm:
@@ -293,22 +308,23 @@ func (g *Generator) validate(p *problems) {
 	c := g.Commands
 	t := &g.T
 	t.Init = compileList(p, "commands.init", c.Init)
-	t.FunctionSine = compileTemplate(p, "commands.function_sine", c.FunctionSine, true)
-	t.SetUnit = compileTemplate(p, "commands.set_unit", c.SetUnit, false, "unit")
-	t.SetLoad = compileTemplate(p, "commands.set_load", c.SetLoad, false, "load")
-	t.SetFrequency = compileGenTemplate(p, "commands.set_frequency", c.SetFrequency, true, []string{"freq_hz"}, "amplitude", "offset_v")
-	t.SetAmplitude = compileGenTemplate(p, "commands.set_amplitude", c.SetAmplitude, true, []string{"amplitude"}, "freq_hz", "offset_v")
-	t.SetOffset = compileGenTemplate(p, "commands.set_offset", c.SetOffset, false, []string{"offset_v"})
-	t.QueryFreq = compileGenTemplate(p, "commands.query_frequency", c.QueryFrequency, false, nil)
-	t.QueryAmpl = compileGenTemplate(p, "commands.query_amplitude", c.QueryAmplitude, false, nil)
-	t.OutputOn = compileTemplate(p, "commands.output_on", c.OutputOn, true)
-	t.OutputOff = compileTemplate(p, "commands.output_off", c.OutputOff, true)
+	t.FunctionSine = compileGenSeq(p, "commands.function_sine", c.FunctionSine, true, nil)
+	t.SetUnit = compileGenSeq(p, "commands.set_unit", c.SetUnit, false, []string{"unit"})
+	t.SetLoad = compileGenSeq(p, "commands.set_load", c.SetLoad, false, []string{"load"})
+	t.SetFrequency = compileGenSeq(p, "commands.set_frequency", c.SetFrequency, true, []string{"freq_hz"})
+	t.SetAmplitude = compileGenSeq(p, "commands.set_amplitude", c.SetAmplitude, true, []string{"amplitude"})
+	t.SetOffset = compileGenSeq(p, "commands.set_offset", c.SetOffset, false, []string{"offset_v"})
+	t.QueryFreq = compileGenQuery(p, "commands.query_frequency", c.QueryFrequency)
+	t.QueryAmpl = compileGenQuery(p, "commands.query_amplitude", c.QueryAmplitude)
+	t.QueryOutput = compileGenQuery(p, "commands.query_output", c.QueryOutput)
+	t.OutputOn = compileGenSeq(p, "commands.output_on", c.OutputOn, true, nil)
+	t.OutputOff = compileGenSeq(p, "commands.output_off", c.OutputOff, true, nil)
 	g.checkGeneratorTemplates(p)
 	g.validateSpec(p)
 	if c.ReadbackTolerance != 0 && (!finite(c.ReadbackTolerance) || c.ReadbackTolerance < 1e-9 || c.ReadbackTolerance > 0.1) {
 		p.add("commands.readback_tolerance", c.ReadbackTolerance, "1e-9 to 0.1 (relative), or 0 for the default 2e-3", "bad read-back tolerance")
 	}
-	if o.OffsetV != 0 && t.SetOffset == nil && !hasPlaceholder(t.SetFrequency, "offset_v") && !hasPlaceholder(t.SetAmplitude, "offset_v") {
+	if o.OffsetV != 0 && !g.sendsOffset() {
 		p.add("output.offset_v", o.OffsetV, "0, or a commands.set_offset (or {offset_v} in set_frequency/set_amplitude) to send it", "offset never sent")
 	}
 }

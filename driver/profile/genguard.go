@@ -1,7 +1,6 @@
 package profile
 
 import (
-	"errors"
 	"fmt"
 	"math"
 	"strings"
@@ -55,43 +54,91 @@ func (g *Generator) validateDBm(p *problems) {
 	}
 }
 
-// compileGenTemplate compiles a generator template that must carry the
-// placeholders in need and may carry those in may, and no others.
-func compileGenTemplate(p *problems, key, text string, required bool, need []string, may ...string) *scpi.Template {
-	if strings.TrimSpace(text) == "" {
+// GenPlaceholders are the placeholders every generator command may
+// carry: rolloff fills each from the settings it last sent.
+var GenPlaceholders = []string{"freq_hz", "amplitude", "offset_v"}
+
+// compileGenSeq compiles a generator command list that must carry the
+// placeholders in need and may carry any of GenPlaceholders, and no
+// others. A command setting several of frequency, amplitude and offset
+// at once (apply-style) must carry all three: an instrument fills an
+// omitted one with its default and would silently reset the level.
+func compileGenSeq(p *problems, key string, cmds Cmds, required bool, need []string) *scpi.Seq {
+	if cmds.Empty() {
 		if required {
-			p.add(key, text, "a SCPI command"+placeholderHint(need), "missing command")
+			p.add(key, "", "a SCPI command or a list of commands"+placeholderHint(need), "missing command")
 		}
 		return nil
 	}
-	t, err := scpi.Compile(key, text)
-	if err != nil {
-		msg := "bad command template"
-		var te *scpi.TemplateError
-		if errors.As(err, &te) {
-			msg += ": " + te.Reason
-		}
-		p.addErr(key, text, "", msg, err)
+	allowed := append(append([]string(nil), need...), GenPlaceholders...)
+	hint := placeholderAllowed(need)
+	if len(need) == 0 {
+		hint = "no placeholders"
+	}
+	hint += ", and optionally {" + strings.Join(GenPlaceholders, "}, {") + "}"
+	ts := compileSeqTemplates(p, key, cmds, allowed, " ("+hint+")")
+	if ts == nil {
 		return nil
 	}
-	allowed := placeholderAllowed(need)
-	if len(may) > 0 {
-		allowed += ", and optionally {" + strings.Join(may, "}, {") + "}"
-	}
-	got := t.Placeholders()
-	for _, n := range got {
-		if !hasName(need, n) && !hasName(may, n) {
-			p.add(key, text, allowed, fmt.Sprintf("unknown placeholder {%s}", n))
-			return nil
-		}
-	}
+	s := scpi.NewSeq(key, ts...)
 	for _, n := range need {
-		if !hasName(got, n) {
-			p.add(key, text, allowed, fmt.Sprintf("placeholder {%s} missing", n))
+		if !s.Has(n) {
+			p.add(key, cmdsValue(cmds), hint, fmt.Sprintf("placeholder {%s} missing", n))
 			return nil
 		}
 	}
-	return t
+	for i, t := range ts {
+		if !checkApplyStyle(p, seqKey(key, len(cmds), i), t) {
+			return nil
+		}
+	}
+	return s
+}
+
+// compileGenQuery compiles an optional read-back query (no placeholders).
+func compileGenQuery(p *problems, key string, cmds Cmds) *scpi.Seq {
+	if cmds.Empty() {
+		return nil
+	}
+	return compileQuerySeq(p, key, cmds, false)
+}
+
+// checkApplyStyle refuses an apply-style command missing one of the
+// generator parameters: one whose header starts with APPLy, or one that
+// carries two or more of {freq_hz}, {amplitude}, {offset_v}.
+func checkApplyStyle(p *problems, key string, t *scpi.Template) bool {
+	got := t.Placeholders()
+	n := 0
+	for _, g := range GenPlaceholders {
+		if hasName(got, g) {
+			n++
+		}
+	}
+	hdr, _, _ := strings.Cut(strings.TrimSpace(t.Text()), " ")
+	hdr = strings.ToUpper(strings.TrimPrefix(hdr, ":"))
+	apply := strings.HasPrefix(hdr, "APPL")
+	if n < 2 && !apply {
+		return true
+	}
+	for _, g := range GenPlaceholders {
+		if !hasName(got, g) {
+			p.add(key, t.Text(), "an apply-style command with all of {freq_hz}, {amplitude} and {offset_v}",
+				fmt.Sprintf("apply-style command without {%s}: an instrument fills an omitted parameter with its default, which can reset the level", g))
+			return false
+		}
+	}
+	return true
+}
+
+// sendsOffset reports whether some command sends {offset_v}.
+func (g *Generator) sendsOffset() bool {
+	t := &g.T
+	for _, s := range []*scpi.Seq{t.FunctionSine, t.SetUnit, t.SetLoad, t.SetFrequency, t.SetAmplitude, t.SetOffset, t.OutputOn, t.OutputOff} {
+		if s.Has("offset_v") {
+			return true
+		}
+	}
+	return false
 }
 
 func hasName(list []string, s string) bool {
@@ -101,11 +148,6 @@ func hasName(list []string, s string) bool {
 		}
 	}
 	return false
-}
-
-// hasPlaceholder reports whether t (may be nil) carries {name}.
-func hasPlaceholder(t *scpi.Template, name string) bool {
-	return t != nil && hasName(t.Placeholders(), name)
 }
 
 // checkGeneratorTemplates refuses, in every generator command, a level,
@@ -119,7 +161,10 @@ func (g *Generator) checkGeneratorTemplates(p *problems) {
 	for i, s := range c.Init {
 		checkLiterals(p, fmt.Sprintf("commands.init[%d]", i), s)
 	}
-	for _, kt := range []struct{ key, text string }{
+	for _, kc := range []struct {
+		key  string
+		cmds Cmds
+	}{
 		{"commands.function_sine", c.FunctionSine},
 		{"commands.set_unit", c.SetUnit},
 		{"commands.set_load", c.SetLoad},
@@ -128,10 +173,13 @@ func (g *Generator) checkGeneratorTemplates(p *problems) {
 		{"commands.set_offset", c.SetOffset},
 		{"commands.query_frequency", c.QueryFrequency},
 		{"commands.query_amplitude", c.QueryAmplitude},
+		{"commands.query_output", c.QueryOutput},
 		{"commands.output_on", c.OutputOn},
 		{"commands.output_off", c.OutputOff},
 	} {
-		checkLiterals(p, kt.key, kt.text)
+		for i, text := range kc.cmds {
+			checkLiterals(p, seqKey(kc.key, len(kc.cmds), i), text)
+		}
 	}
 }
 

@@ -14,6 +14,8 @@ type Switch struct {
 	Name     string        `toml:"name"`
 	Framing  Framing       `toml:"framing"`
 	Identity IdentityCheck `toml:"identity"`
+	Dialect  Dialect       `toml:"dialect"`
+	Response Response      `toml:"response"`
 	// MinChannel and MaxChannel bound the channel numbers.
 	MinChannel int `toml:"min_channel"`
 	MaxChannel int `toml:"max_channel"`
@@ -29,17 +31,17 @@ type Switch struct {
 type SwitchCommands struct {
 	// Init is sent in order after the instrument is cleared.
 	Init []string `toml:"init"`
-	// Close closes one channel; {channel}.
-	Close string `toml:"close"`
+	// Close closes one channel; {channel}. One command or a list.
+	Close Cmds `toml:"close"`
 	// OpenAll opens every channel. No placeholders.
-	OpenAll string `toml:"open_all"`
+	OpenAll Cmds `toml:"open_all"`
 }
 
 // SwitchTmpl are the compiled switch templates.
 type SwitchTmpl struct {
 	Init    []*scpi.Template
-	Close   *scpi.Template
-	OpenAll *scpi.Template
+	Close   *scpi.Seq
+	OpenAll *scpi.Seq
 }
 
 // DecodeSwitch decodes and validates a switch profile.
@@ -63,6 +65,8 @@ func (s *Switch) validate(p *problems) {
 	checkKind(p, s.Kind, KindSwitch)
 	s.Framing.validate(p)
 	s.Identity.validate(p)
+	s.Dialect.validate(p, s.CheckErrors)
+	s.Response.validate(p)
 	if s.MinChannel < 0 || s.MinChannel > 9999 {
 		p.add("min_channel", s.MinChannel, "0 to 9999", "bad channel")
 	}
@@ -73,6 +77,6 @@ func (s *Switch) validate(p *problems) {
 		p.add("settle_s", s.SettleS, "0 to 10 seconds", "bad settling time")
 	}
 	s.T.Init = compileList(p, "commands.init", s.Commands.Init)
-	s.T.Close = compileTemplate(p, "commands.close", s.Commands.Close, true, "channel")
-	s.T.OpenAll = compileTemplate(p, "commands.open_all", s.Commands.OpenAll, true)
+	s.T.Close = compileSeq(p, "commands.close", s.Commands.Close, true, "channel")
+	s.T.OpenAll = compileSeq(p, "commands.open_all", s.Commands.OpenAll, true)
 }

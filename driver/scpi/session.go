@@ -25,7 +25,57 @@ type Opts struct {
 	// MaxErrors bounds DrainErrors: an error queue that still has entries
 	// after this many reads is reported as an error.
 	MaxErrors int
+	// Response is how the instrument writes numbers and its identity.
+	Response ResponseFormat
+	// ErrorQuery reads one entry of the error queue; "" means
+	// DefaultErrorQuery unless NoErrorQuery.
+	ErrorQuery   string
+	NoErrorQuery bool
+	// OPCQuery answers 1 once pending operations are complete; ""
+	// means DefaultOPCQuery unless NoOPCQuery.
+	OPCQuery   string
+	NoOPCQuery bool
 }
+
+// The IEEE 488.2 and SCPI-1999 common queries a session uses unless told
+// otherwise.
+const (
+	DefaultErrorQuery = "SYST:ERR?" // SCPI-1999 Vol 2 §21.8
+	DefaultOPCQuery   = "*OPC?"     // IEEE 488.2 §10.19
+)
+
+// ErrNotSupported is wrapped by a call needing a query the instrument
+// does not have (Opts.NoErrorQuery, Opts.NoOPCQuery).
+var ErrNotSupported = errors.New("scpi: not supported by this instrument")
+
+// errorQuery returns the error query, or "" when there is none.
+func (o Opts) errorQuery() string {
+	switch {
+	case o.NoErrorQuery:
+		return ""
+	case o.ErrorQuery != "":
+		return o.ErrorQuery
+	}
+	return DefaultErrorQuery
+}
+
+// opcQuery returns the operation-complete query, or "" when none.
+func (o Opts) opcQuery() string {
+	switch {
+	case o.NoOPCQuery:
+		return ""
+	case o.OPCQuery != "":
+		return o.OPCQuery
+	}
+	return DefaultOPCQuery
+}
+
+// HasErrorQuery reports whether the instrument has an error queue query.
+func (s *Session) HasErrorQuery() bool { return s.opts.errorQuery() != "" }
+
+// HasOPCQuery reports whether the instrument has an operation-complete
+// query.
+func (s *Session) HasOPCQuery() bool { return s.opts.opcQuery() != "" }
 
 // DefaultOpts are the settings New uses for nil Opts, and for zero fields.
 var DefaultOpts = Opts{QueryTimeout: 2 * time.Second, InterCommandDelay: 0, MaxErrors: 64}
@@ -133,8 +183,25 @@ func (s *Session) Write(ctx context.Context, cmd string) error {
 
 // Query sends a query and returns its response without surrounding white
 // space.
+//
+// When the answer does not come in time and the instrument has an error
+// query, one entry of its error queue is read and, if it holds an error,
+// put in the message (e.g. -230 "Data stale"): what the instrument says
+// went wrong is worth more than the time-out alone.
 func (s *Session) Query(ctx context.Context, cmd string) (string, error) {
-	return s.exchange(ctx, cmd, true)
+	resp, err := s.exchange(ctx, cmd, true)
+	if err != nil && errors.Is(err, driver.ErrTimeout) {
+		if q := s.opts.errorQuery(); q != "" && q != cmd {
+			ectx, cancel := context.WithTimeout(context.Background(), s.opts.QueryTimeout)
+			defer cancel()
+			if r, qerr := s.exchange(ectx, q, true); qerr == nil {
+				if e, perr := ParseErrorEntry(r); perr == nil && e.Code != 0 {
+					return "", fmt.Errorf("%w; the instrument's error queue then held: %v", err, e)
+				}
+			}
+		}
+	}
+	return resp, err
 }
 
 // QueryFloat sends a query whose response is one number (see ParseNumber:
@@ -144,7 +211,7 @@ func (s *Session) QueryFloat(ctx context.Context, cmd string) (float64, error) {
 	if err != nil {
 		return 0, err
 	}
-	v, err := ParseNumber(resp)
+	v, err := s.opts.Response.ParseNumber(resp)
 	if err != nil {
 		return 0, fmt.Errorf("scpi: %s: %w", cmd, err)
 	}
@@ -159,7 +226,7 @@ func (s *Session) QueryFloats(ctx context.Context, cmd string) ([]float64, error
 	if err != nil {
 		return nil, err
 	}
-	v, err := ParseNumbers(resp)
+	v, err := s.opts.Response.ParseNumbers(resp)
 	if err != nil {
 		return nil, fmt.Errorf("scpi: %s: %w", cmd, err)
 	}
@@ -191,7 +258,7 @@ func (s *Session) Identify(ctx context.Context) (driver.Identity, error) {
 	if err != nil {
 		return driver.Identity{}, err
 	}
-	return ParseIdentity(resp)
+	return s.opts.Response.ParseIdentity(resp)
 }
 
 // Reset sends *RST (IEEE 488.2 §10.32).
@@ -204,13 +271,19 @@ func (s *Session) Clear(ctx context.Context) error { return s.Write(ctx, "*CLS")
 // OperationComplete queries *OPC?, which answers 1 once every pending
 // operation has finished (IEEE 488.2 §10.19). Any other answer wraps
 // driver.ErrMalformed.
+//
+// The query is Opts.OPCQuery; without one it wraps ErrNotSupported.
 func (s *Session) OperationComplete(ctx context.Context) error {
-	resp, err := s.Query(ctx, "*OPC?")
+	q := s.opts.opcQuery()
+	if q == "" {
+		return fmt.Errorf("scpi: operation-complete query: %w", ErrNotSupported)
+	}
+	resp, err := s.Query(ctx, q)
 	if err != nil {
 		return err
 	}
 	if v, err := ParseNumber(resp); err != nil || v != 1 {
-		return fmt.Errorf("scpi: *OPC?: answer %q, want 1: %w", quoteable(resp), driver.ErrMalformed)
+		return fmt.Errorf("scpi: %s: answer %q, want 1: %w", q, quoteable(resp), driver.ErrMalformed)
 	}
 	return nil
 }
@@ -219,10 +292,17 @@ func (s *Session) OperationComplete(ctx context.Context) error {
 // ("No error", SCPI-1999 Vol 2 §21.8) and returns the entries read, oldest
 // first. A queue that has not emptied after Opts.MaxErrors reads is an
 // error wrapping driver.ErrInstrument, returned with the entries read.
+//
+// The query is Opts.ErrorQuery; without one DrainErrors wraps
+// ErrNotSupported.
 func (s *Session) DrainErrors(ctx context.Context) ([]Error, error) {
+	q := s.opts.errorQuery()
+	if q == "" {
+		return nil, fmt.Errorf("scpi: error queue: %w", ErrNotSupported)
+	}
 	var out []Error
 	for range s.opts.MaxErrors {
-		resp, err := s.Query(ctx, "SYST:ERR?")
+		resp, err := s.exchange(ctx, q, true)
 		if err != nil {
 			return out, err
 		}
@@ -235,7 +315,7 @@ func (s *Session) DrainErrors(ctx context.Context) ([]Error, error) {
 		}
 		out = append(out, e)
 	}
-	return out, fmt.Errorf("scpi: SYST:ERR?: the error queue still had entries after %d reads: %w", s.opts.MaxErrors, driver.ErrInstrument)
+	return out, fmt.Errorf("scpi: %s: the error queue still had entries after %d reads: %w", q, s.opts.MaxErrors, driver.ErrInstrument)
 }
 
 // Close closes the connection. An exchange blocked in another goroutine

@@ -80,8 +80,9 @@ func TestSessionReadings(t *testing.T) {
 	if err != nil || fmt.Sprint(burst) != "[0.1 0.11 0.12 0.13]" {
 		t.Fatalf("QueryFloats = %v, %v", burst, err)
 	}
-	if _, err := s.QueryFloat(ctx, "READ?"); !errors.Is(err, driver.ErrTimeout) {
-		t.Fatalf("QueryFloat with no answer = %v, want ErrTimeout", err)
+	// After a time-out the error queue is read and its entry named.
+	if _, err := s.QueryFloat(ctx, "READ?"); !errors.Is(err, driver.ErrTimeout) || !strings.Contains(err.Error(), "-230") {
+		t.Fatalf("QueryFloat with no answer = %v, want ErrTimeout naming the instrument's -230", err)
 	}
 	// IEEE 488.2 §10.19: *OPC? answers 1; anything else is refused.
 	if err := s.OperationComplete(ctx); !errors.Is(err, driver.ErrMalformed) {

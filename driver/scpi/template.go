@@ -152,6 +152,7 @@ type Arg struct {
 	num  float64
 	i    int
 	word string
+	fmt  *NumberFormat // nil: the fewest digits that read back exactly
 }
 
 // Num is a finite number, written with the fewest digits that read back to
@@ -224,6 +225,13 @@ func (a Arg) value() string {
 func (a Arg) render() (string, string) {
 	switch a.kind {
 	case argNum:
+		if a.fmt != nil {
+			s, err := a.fmt.Text(a.num)
+			if err != nil {
+				return "", err.Error()
+			}
+			return s, ""
+		}
 		s, err := FormatNumber(a.num)
 		if err != nil {
 			return "", err.Error()

@@ -71,6 +71,10 @@ type Bench struct {
 	drift     *drift           // converter gain drift, nil: none
 	started   bool
 	closed    bool
+	// The opc-mute personality: the frequency the mute last followed
+	// and the wall time the output comes back.
+	muteFreqHz float64
+	muteUntil  time.Time
 
 	insts map[string]*instrument
 	wg    sync.WaitGroup
@@ -107,6 +111,7 @@ func New(cfg Config) (*Bench, error) {
 	b.rngVM = rand.New(rand.NewPCG(cfg.Seed, streamVoltmeter))
 	b.rngDMM = rand.New(rand.NewPCG(cfg.Seed, streamDMM))
 	b.gen = resetGen(&cfg.Generator)
+	b.muteFreqHz = b.gen.freqHz
 	b.applyLocked(0)
 
 	b.insts = map[string]*instrument{
@@ -257,7 +262,8 @@ func (b *Bench) sleepUntil(ctx context.Context, t float64) error {
 // applyLocked pushes the generator state into the model at model time t.
 func (b *Bench) applyLocked(t float64) {
 	sig := model.Signal{Shape: b.gen.shape, FreqHz: b.gen.freqHz}
-	if b.gen.on {
+	muted := b.muteOnFreqChangeLocked()
+	if b.gen.on && !muted {
 		sig.Vrms = b.gen.dutVrms(b.cfg.Generator.SourceOhm, b.cfg.DUT.InputOhm) * b.sys.GeneratorGain(b.gen.freqHz)
 	}
 	b.notePeakLocked()

@@ -72,6 +72,9 @@ type GeneratorConfig struct {
 	// generators do either.
 	DBmReference string  `toml:"dbm_reference"`
 	DBmFixedOhm  float64 `toml:"dbm_fixed_ohm"`
+	// Personality is the generator's SCPI dialect: "" (the full
+	// command set), "apply-vpp" or "opc-mute" (see GeneratorPersonalities).
+	Personality string `toml:"personality"`
 }
 
 // Section is one filter section of the DUT. Kind is one of
@@ -147,6 +150,9 @@ type VoltmeterConfig struct {
 	NoiseV     float64 `toml:"noise_v"`
 	ResetNPLC  float64 `toml:"reset_nplc"`
 	MaxSamples int     `toml:"max_samples"`
+	// Personality is the voltmeter's SCPI dialect: "" (the full command
+	// set) or one of MeterPersonalities.
+	Personality string `toml:"personality"`
 }
 
 // DMMConfig is the AC DMM reading the DUT output's true RMS directly.
@@ -165,6 +171,8 @@ type DMMConfig struct {
 	BandwidthHz float64 `toml:"bandwidth_hz"`
 	ResetNPLC   float64 `toml:"reset_nplc"`
 	MaxSamples  int     `toml:"max_samples"`
+	// Personality is the DMM's SCPI dialect, as for the voltmeter.
+	Personality string `toml:"personality"`
 }
 
 // SwitchConfig is the relay instrument selecting the converter range;
@@ -327,6 +335,15 @@ func (c *Config) Validate() error {
 
 	g := &c.Generator
 	idn("generator.idn", g.IDN)
+	if !validPersonality(GeneratorPersonalities, g.Personality) {
+		bad("generator.personality", g.Personality, personalitiesAllowed(GeneratorPersonalities))
+	}
+	if !validPersonality(MeterPersonalities, c.Voltmeter.Personality) {
+		bad("voltmeter.personality", c.Voltmeter.Personality, personalitiesAllowed(MeterPersonalities))
+	}
+	if !validPersonality(MeterPersonalities, c.DMM.Personality) {
+		bad("dmm.personality", c.DMM.Personality, personalitiesAllowed(MeterPersonalities))
+	}
 	positive("generator.min_freq_hz", g.MinFreqHz, 1e9)
 	positive("generator.max_freq_hz", g.MaxFreqHz, 1e9)
 	if g.MaxFreqHz <= g.MinFreqHz {

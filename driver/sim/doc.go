@@ -79,7 +79,7 @@
 //	[generator] idn, min_freq_hz, max_freq_hz, min_vrms, max_vrms,
 //	            source_ohm, load_ohm (0 = INFinity), reset_freq_hz,
 //	            reset_vrms, reset_unit ("VRMS"|"VPP"|"DBM"), harmonics,
-//	            dbm_reference ("fixed"|"load"), dbm_fixed_ohm
+//	            dbm_reference ("fixed"|"load"), dbm_fixed_ohm, personality
 //	[dut]       gain_db, clip_v (0 = none), noise_vrms, input_ohm (0 = high),
 //	            [[dut.sections]] kind, freq_hz, q, order
 //	[converter] dc_full_scale_v, saturate_fraction, floor_fraction,
@@ -87,16 +87,36 @@
 //	            hold_interval_s, hold_s, initial_range (-1 = none),
 //	            [[converter.ranges]] name, full_scale_vrms, time_constant_s
 //	[voltmeter] idn, ranges_v, over_range_fraction, noise_v, reset_nplc,
-//	            max_samples
+//	            max_samples, personality
 //	[dmm]       idn, ranges_vrms, over_range_fraction, noise_v, floor_vrms,
 //	            time_constant_s, bandwidth_hz (0 = none), reset_nplc,
-//	            max_samples
+//	            max_samples, personality
 //	[switch]    idn
 //	[spec.converter] range_gain_pct, linearity_pct,
 //	            [[spec.converter.flatness]] ranges, from_hz, to_hz, flatness_pct
 //	[spec.voltmeter] [[spec.voltmeter.accuracy]] range_v, reading_pct, range_pct
 //	[spec.generator] amplitude_pct,
 //	            [[spec.generator.flatness]] from_hz, to_hz, flatness_db
+//
+// A personality is a SCPI dialect the instrument speaks instead of its
+// full command set ("" or absent), with the shipped profile family that
+// describes it (configs/):
+//
+//	meters     "plain"      READ? only, one reading, no SAMPle:COUNt, no
+//	                        NPLCycles or APERture (dmm-plain.toml)
+//	           "initfetch"  INITiate then FETCh?, no READ? or MEASure
+//	                        (dmm-initfetch.toml)
+//	           "measure"    MEASure:VOLTage[:AC]? [range] only (dmm-measure.toml)
+//	           "suffixed"   "+1.0E-01 VDC", OVLD, a comma after a burst, a
+//	                        3-field *IDN? (dmm-suffixed.toml)
+//	           "slow"       200 ms per answer, the link dropped every 50
+//	                        queries (dmm-slow.toml)
+//	generator  "apply-vpp"  APPLy:SINusoid <f>,<Vpp into 50 Ω>,<offset> only;
+//	                        an omitted parameter takes its reset value
+//	                        (generator-apply-vpp.toml)
+//	           "opc-mute"   output muted 50 ms after a frequency change;
+//	                        *OPC? answers when it is back (generator-opc.toml)
+//	           "slow"       as for the meters
 //
 // Section kinds: "highpass1", "lowpass1" (first order, corner freq_hz),
 // "highpass2", "lowpass2" (second order, natural frequency freq_hz,

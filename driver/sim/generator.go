@@ -53,7 +53,11 @@ type genState struct {
 
 func resetGen(c *GeneratorConfig) genState {
 	u, _ := unitByName(c.ResetUnit)
-	return genState{freqHz: c.ResetFreqHz, vrms: c.ResetVrms, unit: u, shape: model.Sine, loadOhm: c.LoadOhm}
+	g := genState{freqHz: c.ResetFreqHz, vrms: c.ResetVrms, unit: u, shape: model.Sine, loadOhm: c.LoadOhm}
+	if c.Personality == PersonalityApplyVpp {
+		g.unit, g.loadOhm = unitVpp, applyVppLoad
+	}
+	return g
 }
 
 // dutVrms returns the voltage at the DUT input: the generator sets its
@@ -343,6 +347,13 @@ func (b *Bench) generatorCommands(in *instrument) {
 		}
 		return scpiserver.NR3(b.gen.loadOhm), c.Arity(0, 0)
 	})
+	in.personality = gc.Personality
+	switch gc.Personality {
+	case PersonalityApplyVpp:
+		b.applyVppCommands(d)
+	case PersonalityOPCMute:
+		b.opcMuteCommands(d)
+	}
 }
 
 // resetGenerator is the generator's *RST: output off, settings from the

@@ -38,6 +38,8 @@ type meter struct {
 	apertureS float64
 	samples   int
 	meas      *measurement
+
+	personality string
 }
 
 // measurement is one triggered burst: n readings of aperture ta from
@@ -231,7 +233,7 @@ func (m *meter) commands(d *scpiserver.Device) {
 			return "", err
 		}
 		r, err := m.fetch(ctx)
-		return scpiserver.NR3List(r), err
+		return m.answer(r), err
 	})
 	h("[SENSe:]FUNCtion[:ON]", func(_ context.Context, c *scpiserver.Call) (string, error) {
 		if err := c.Arity(1, 1); err != nil {
@@ -355,7 +357,7 @@ func (m *meter) commands(d *scpiserver.Device) {
 			return "", err
 		}
 		r, err := m.fetch(ctx)
-		return scpiserver.NR3List(r), err
+		return m.answer(r), err
 	})
 	h("READ?", func(ctx context.Context, c *scpiserver.Call) (string, error) {
 		if err := c.Arity(0, 0); err != nil {
@@ -365,7 +367,7 @@ func (m *meter) commands(d *scpiserver.Device) {
 			return "", err
 		}
 		r, err := m.fetch(ctx)
-		return scpiserver.NR3List(r), err
+		return m.answer(r), err
 	})
 }
 
@@ -392,13 +394,30 @@ func (b *Bench) newMeter(kind meterKind, f *Faults) *meter {
 // voltmeterCommands registers the DC voltmeter's command set.
 func (b *Bench) voltmeterCommands(in *instrument) {
 	m := b.newMeter(dcMeter, in.faults)
+	m.personality = b.cfg.Voltmeter.Personality
 	in.reset = m.reset
 	m.commands(in.dev)
+	in.setMeterPersonality(b.cfg.Voltmeter.Personality)
+}
+
+// setMeterPersonality restricts a meter's commands to its dialect.
+func (in *instrument) setMeterPersonality(p string) {
+	in.personality = p
+	restrictMeter(in.dev, p)
+	if p == PersonalitySuffixed {
+		idn := suffixedIDN(in.idn)
+		in.dev.Remove(func(pat string) bool { return pat == "*IDN?" })
+		in.dev.MustHandle("*IDN?", func(_ context.Context, c *scpiserver.Call) (string, error) {
+			return idn, c.Arity(0, 0)
+		})
+	}
 }
 
 // dmmCommands registers the AC DMM's command set.
 func (b *Bench) dmmCommands(in *instrument) {
 	m := b.newMeter(acMeter, in.faults)
+	m.personality = b.cfg.DMM.Personality
 	in.reset = m.reset
 	m.commands(in.dev)
+	in.setMeterPersonality(b.cfg.DMM.Personality)
 }

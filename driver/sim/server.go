@@ -37,6 +37,10 @@ type instrument struct {
 
 	recMu    sync.Mutex
 	received []string
+	queries  int // answers sent, for the slow personality's drops
+
+	personality string
+	idn         string
 
 	lnMu      sync.Mutex
 	ln        net.Listener
@@ -48,7 +52,7 @@ type instrument struct {
 }
 
 func newInstrument(b *Bench, role, idn string, register func(*instrument)) *instrument {
-	in := &instrument{b: b, role: role, conns: map[net.Conn]struct{}{}}
+	in := &instrument{b: b, role: role, idn: idn, conns: map[net.Conn]struct{}{}}
 	in.faults = &Faults{in: in}
 	in.dev = scpiserver.New(scpiserver.Opts{
 		IDN:      idn,
@@ -269,12 +273,17 @@ func (in *instrument) process(line string, l link) bool {
 	if !ok {
 		return true
 	}
-	if d := f.takeDelay(); d > 0 {
+	slow, drop := in.slowAnswer()
+	if d := f.takeDelay() + slow; d > 0 {
 		select {
 		case <-time.After(d):
 		case <-in.b.ctx.Done():
 			return false
 		}
+	}
+	if drop {
+		l.hangUp()
+		return false
 	}
 	resp, _ = f.takeCorrupt(resp)
 	if f.takeTruncate() {

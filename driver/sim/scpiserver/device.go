@@ -82,6 +82,24 @@ func (d *Device) Handle(pat string, h Handler) error {
 	return nil
 }
 
+// Remove unregisters every handler whose pattern text (as given to
+// Handle) drop returns true for, and returns how many it removed: a
+// simulated instrument with a smaller command set answers the removed
+// headers with -113 "Undefined header".
+func (d *Device) Remove(drop func(pattern string) bool) int {
+	kept := d.entries[:0]
+	n := 0
+	for _, e := range d.entries {
+		if drop(e.p.text) {
+			n++
+			continue
+		}
+		kept = append(kept, e)
+	}
+	d.entries = kept
+	return n
+}
+
 // MustHandle is Handle for patterns written in the program text; it panics
 // on a malformed pattern.
 func (d *Device) MustHandle(pat string, h Handler) {

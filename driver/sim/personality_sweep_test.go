@@ -1,0 +1,201 @@
+package sim_test
+
+import (
+	"context"
+	"encoding/json"
+	"io/fs"
+	"math"
+	"strings"
+	"testing"
+	"testing/fstest"
+	"time"
+
+	"github.com/rs/zerolog"
+
+	"rolloff/configs"
+	"rolloff/driver/bench"
+	"rolloff/driver/profile"
+	"rolloff/sweep/event"
+	"rolloff/sweep/plan"
+	"rolloff/sweep/sched"
+	"rolloff/sweep/sched/finish"
+	"rolloff/sweep/sched/onbench"
+	"rolloff/sweep/store"
+)
+
+// dialect is one simulated personality with the shipped profile family
+// that describes it.
+type dialect struct {
+	name             string
+	genProfile       string
+	vmProfile        string
+	genPers, vmPers  string
+	long             bool // slow enough to run only without -short
+	needsSingleReads bool // no bursts: needs single-reading averaging in the scheduler
+}
+
+var dialects = []dialect{
+	{name: "plain", genProfile: "generator-scpi.toml", vmProfile: "dmm-plain.toml", vmPers: "plain", needsSingleReads: true},
+	{name: "initfetch", genProfile: "generator-scpi.toml", vmProfile: "dmm-initfetch.toml", vmPers: "initfetch"},
+	{name: "measure", genProfile: "generator-scpi.toml", vmProfile: "dmm-measure.toml", vmPers: "measure", needsSingleReads: true},
+	{name: "suffixed", genProfile: "generator-scpi.toml", vmProfile: "dmm-suffixed.toml", vmPers: "suffixed"},
+	{name: "slow", genProfile: "generator-scpi.toml", vmProfile: "dmm-slow.toml", vmPers: "slow", long: true},
+	{name: "apply-vpp", genProfile: "generator-apply-vpp.toml", vmProfile: "dmm-scpi.toml", genPers: "apply-vpp"},
+	{name: "opc-mute", genProfile: "generator-opc.toml", vmProfile: "dmm-scpi.toml", genPers: "opc-mute"},
+}
+
+// dialectFS returns the shipped configs plus bench.toml: the demo
+// simulated bench with the dialect's profiles and personalities, and
+// extra (old, new) edits applied to the named profile files.
+func dialectFS(t testing.TB, d dialect, scale float64, edits map[string][]string) fstest.MapFS {
+	t.Helper()
+	m := fstest.MapFS{}
+	for _, n := range configs.Names() {
+		data, err := fs.ReadFile(configs.FS(), n)
+		if err != nil {
+			t.Fatal(err)
+		}
+		s := string(data)
+		for i := 0; i+1 < len(edits[n]); i += 2 {
+			if !strings.Contains(s, edits[n][i]) {
+				t.Fatalf("%s: %q not found", n, edits[n][i])
+			}
+			s = strings.Replace(s, edits[n][i], edits[n][i+1], 1)
+		}
+		m[n] = &fstest.MapFile{Data: []byte(s)}
+	}
+	b := string(m[configs.SimBench].Data)
+	for _, r := range [][2]string{
+		{`profile = "generator-scpi.toml"`, `profile = "` + d.genProfile + `"`},
+		{`profile = "dmm-scpi.toml"`, `profile = "` + d.vmProfile + `"`},
+		{"[sim.generator]\n", "[sim.generator]\npersonality = \"" + d.genPers + "\"\n"},
+		{"[sim.voltmeter]\n", "[sim.voltmeter]\npersonality = \"" + d.vmPers + "\"\n"},
+		{"time_scale = 50\n", "time_scale = " + strings.TrimSpace(jsonNum(scale)) + "\n"},
+	} {
+		if !strings.Contains(b, r[0]) {
+			t.Fatalf("sim-bench.toml: %q not found", r[0])
+		}
+		b = strings.Replace(b, r[0], r[1], 1)
+	}
+	m["bench.toml"] = &fstest.MapFile{Data: []byte(b)}
+	return m
+}
+
+func jsonNum(v float64) string {
+	b, _ := json.Marshal(v)
+	return string(b)
+}
+
+// dialectPlan is the shipped demo plan (2 Hz to 2 MHz, 12 points per
+// decade, refinement of both corners), with fewer points per decade for
+// a slow instrument.
+func dialectPlan(t testing.TB, pointsPerDecade int) *plan.Plan {
+	t.Helper()
+	data, err := configs.ReadFile("demo-plan.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := strings.Replace(string(data), "points_per_decade = 12", "points_per_decade = "+jsonNum(float64(pointsPerDecade)), 1)
+	p, err := plan.DecodeTOML("demo-plan.toml", []byte(s))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+// TestPersonalitySweeps runs a full converter-mode sweep through each
+// personality, described by its shipped profile family, and checks the
+// corners against the simulated DUT's analytic ones (the crossing of its
+// 1 kHz gain − 3.0103 dB, solved by the simulator's model): within 0.5 %.
+func TestPersonalitySweeps(t *testing.T) {
+	for _, d := range dialects {
+		t.Run(d.name, func(t *testing.T) {
+			if d.long && testing.Short() {
+				t.Skip("slow personality (200 ms per answer): runs without -short")
+			}
+			ppd := 12
+			if d.long {
+				ppd = 3
+			}
+			cfg, err := profile.LoadBenchFS(dialectFS(t, d, 50, nil), "bench.toml")
+			if err != nil {
+				if d.needsSingleReads {
+					t.Skip("needs single-reading averaging in the scheduler")
+				}
+				t.Fatal(err)
+			}
+			p := dialectPlan(t, ppd)
+			lo, hi, wantLo, wantHi, err := sweepCorners(t, cfg, p)
+			if err != nil {
+				if d.needsSingleReads && strings.Contains(err.Error(), "burst length") {
+					t.Skip("needs single-reading averaging in the scheduler")
+				}
+				t.Fatal(err)
+			}
+			for _, c := range []struct {
+				what      string
+				got, want float64
+			}{{"low", lo, wantLo}, {"high", hi, wantHi}} {
+				e := c.got/c.want - 1
+				t.Logf("%s: %s corner %.6g Hz, analytic %.6g Hz (%+.3f %%)", d.name, c.what, c.got, c.want, 100*e)
+				if math.Abs(e) > 0.005 {
+					t.Errorf("%s corner %g Hz, analytic %g Hz (%+.3f %%, allowed ±0.5 %%)", c.what, c.got, c.want, 100*e)
+				}
+			}
+		})
+	}
+}
+
+// sweepCorners opens the bench, runs p with the finish step's analysis
+// and returns the corners of its result and the analytic ones.
+func sweepCorners(t testing.TB, cfg *profile.BenchFile, p *plan.Plan) (lo, hi, wantLo, wantHi float64, err error) {
+	t.Helper()
+	ctx, cancel := context.WithTimeout(context.Background(), 4*time.Minute)
+	defer cancel()
+	b, err := bench.Open(ctx, cfg, zerolog.Nop())
+	if err != nil {
+		return 0, 0, 0, 0, err
+	}
+	defer b.Close()
+	st, err := store.Open(t.TempDir())
+	if err != nil {
+		t.Fatal(err)
+	}
+	run, err := st.Create(store.CreateOpts{PlanFile: "plan.toml", PlanData: []byte("name = \"test\"\n"), Plan: p, BenchFile: cfg.Raw})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer run.Close()
+	inst := onbench.Instruments(b, zerolog.Nop())
+	opts := sched.Opts{Finish: finish.Analyze(p, run.Dir(), nil)}
+	if i := b.Sim.ConverterRange(); i >= 0 {
+		opts.RangeKnown, opts.CurrentRange = true, i
+	}
+	opts.Operator = func(ctx context.Context, pr event.Prompt) (int, error) {
+		return pr.RangeIndex, b.Sim.SelectRange(pr.RangeIndex)
+	}
+	r := sched.Start(ctx, inst, p, run, opts)
+	if err := r.Wait(); err != nil {
+		return 0, 0, 0, 0, err
+	}
+	evs, err := run.Events()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var result struct {
+		LowHz  *float64 `json:"low_hz"`
+		HighHz *float64 `json:"high_hz"`
+	}
+	for _, e := range evs {
+		if e.Type == event.TypeResult {
+			if err := json.Unmarshal(e.Result, &result); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	if result.LowHz == nil || result.HighHz == nil {
+		t.Fatalf("no corners in the result")
+	}
+	wantLo, wantHi = b.Sim.DUTCorners(p.Refine.LevelDB)
+	return *result.LowHz, *result.HighHz, wantLo, wantHi, nil
+}
