@@ -45,6 +45,10 @@ type DMMDC struct {
 	// means no aperture setting.
 	MinApertureS float64 `toml:"min_aperture_s"`
 	MaxApertureS float64 `toml:"max_aperture_s"`
+	// FixedApertureS is the integration time, seconds, of a meter that
+	// cannot set it (no nplc, no aperture bounds): the ripple bound and
+	// the reading plan use it. Required then, refused otherwise.
+	FixedApertureS float64 `toml:"fixed_aperture_s"`
 	// Configure selects the DC voltage function. No placeholders.
 	Configure string `toml:"configure"`
 	// SetRange sets the range; {range_v} in volts.
@@ -145,6 +149,7 @@ func (d *DMM) validate(p *problems) {
 	t.SetSampleCount = compileTemplate(p, "set_sample_count", d.SetSampleCount, d.MaxSamples > 1, "count")
 	validateRanges(p, "dc.ranges_v", d.DC.RangesV, 1e-3, 1e4)
 	validateAperture(p, "dc", d.DC.NPLC, d.DC.MinApertureS, d.DC.MaxApertureS)
+	validateFixedAperture(p, "dc", d.DC.FixedApertureS, len(d.DC.NPLC) > 0 || d.DC.MaxApertureS > 0)
 	t.DCConfigure = compileTemplate(p, "dc.configure", d.DC.Configure, true)
 	t.DCSetRange = compileTemplate(p, "dc.set_range", d.DC.SetRange, true, "range_v")
 	t.DCSetAutoRange = compileTemplate(p, "dc.set_auto_range", d.DC.SetAutoRange, false)

@@ -114,6 +114,9 @@ func syncMeters(b *profile.BenchFile, c *Config, add func(key string, value any,
 		if !listed("sim.voltmeter.over_range_fraction") {
 			c.Voltmeter.OverRangeFraction = v.DMM.RangeHeadroom - 1
 		}
+		if fx := v.DMM.DC.FixedApertureS; fx > 0 && !listed("sim.voltmeter.reset_nplc") {
+			c.Voltmeter.ResetNPLC = fx * v.DMM.LineHz // the profile's fixed integration time
+		}
 		lineHz, lineFrom = v.DMM.LineHz, v.DMM.File
 	}
 	if d := b.DMM; d != nil && d.DMM != nil && d.DMM.AC != nil {

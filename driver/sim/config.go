@@ -135,6 +135,9 @@ type VoltmeterConfig struct {
 	NoiseV     float64 `toml:"noise_v"`
 	ResetNPLC  float64 `toml:"reset_nplc"`
 	MaxSamples int     `toml:"max_samples"`
+	// QueryLatencyS is the model time a reading's answer takes after the
+	// measurement (trigger, conversion, transfer); 0: none.
+	QueryLatencyS float64 `toml:"query_latency_s"`
 }
 
 // DMMConfig is the AC DMM reading the DUT output's true RMS directly.
@@ -153,6 +156,8 @@ type DMMConfig struct {
 	BandwidthHz float64 `toml:"bandwidth_hz"`
 	ResetNPLC   float64 `toml:"reset_nplc"`
 	MaxSamples  int     `toml:"max_samples"`
+	// QueryLatencyS is as for the voltmeter.
+	QueryLatencyS float64 `toml:"query_latency_s"`
 }
 
 // SwitchConfig is the relay instrument selecting the converter range;
@@ -413,6 +418,7 @@ func (c *Config) Validate() error {
 	if m.MaxSamples < 1 || m.MaxSamples > 100000 {
 		bad("voltmeter.max_samples", m.MaxSamples, "1..100000")
 	}
+	between("voltmeter.query_latency_s", m.QueryLatencyS, 0, maxQueryLatencyS)
 
 	a := &c.DMM
 	idn("dmm.idn", a.IDN)
@@ -426,6 +432,7 @@ func (c *Config) Validate() error {
 	if a.MaxSamples < 1 || a.MaxSamples > 100000 {
 		bad("dmm.max_samples", a.MaxSamples, "1..100000")
 	}
+	between("dmm.query_latency_s", a.QueryLatencyS, 0, maxQueryLatencyS)
 
 	idn("switch.idn", c.Switch.IDN)
 	if len(errs) == 0 {

@@ -38,6 +38,7 @@ type benchState struct {
 	dcCfg      driver.DCConfig
 	acCfg      driver.ACConfig
 	cfgOK      bool
+	latencyS   float64 // a single reading's round trip less its aperture, measured at the start (0: not)
 }
 
 // holdSchedule is what the scheduler has seen of the converter's
