@@ -185,4 +185,3 @@ func plainWaitModel(ctx context.Context, sm *sim.Bench, tS float64) {
 		time.Sleep(time.Duration((tS - now) / sm.TimeScale() * float64(time.Second)))
 	}
 }
-
