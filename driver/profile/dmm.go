@@ -86,6 +86,12 @@ type DMMAC struct {
 	SetNPLC      string    `toml:"set_nplc"`
 	SetAperture  string    `toml:"set_aperture"`
 	Read         string    `toml:"read"`
+	// FixedApertureS is the integration time of a reading, seconds, where
+	// the profile sets none (see ACTiming); optional.
+	FixedApertureS float64 `toml:"fixed_aperture_s"`
+	// Filters is the meter's own RMS settling, per frequency band (see
+	// ACFilter); optional.
+	Filters []ACFilter `toml:"filters"`
 }
 
 // DMMTmpl are the compiled DMM templates. Optional ones are nil.
@@ -177,6 +183,7 @@ func (d *DMM) validate(p *problems) {
 		t.ACSetNPLC = compileTemplate(p, "ac.set_nplc", ac.SetNPLC, len(ac.NPLC) > 0, "nplc")
 		t.ACSetAperture = compileTemplate(p, "ac.set_aperture", ac.SetAperture, ac.MaxApertureS > 0, "aperture_s")
 		t.ACRead = compileTemplate(p, "ac.read", ac.Read, true)
+		ac.validateTiming(p)
 	}
 }
 

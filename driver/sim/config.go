@@ -158,6 +158,9 @@ type DMMConfig struct {
 	MaxSamples  int     `toml:"max_samples"`
 	// QueryLatencyS is as for the voltmeter.
 	QueryLatencyS float64 `toml:"query_latency_s"`
+	// Filters, when given, set the averaging time constant per frequency
+	// band (see DMMFilter).
+	Filters []DMMFilter `toml:"filters"`
 }
 
 // SwitchConfig is the relay instrument selecting the converter range;
@@ -433,6 +436,7 @@ func (c *Config) Validate() error {
 		bad("dmm.max_samples", a.MaxSamples, "1..100000")
 	}
 	between("dmm.query_latency_s", a.QueryLatencyS, 0, maxQueryLatencyS)
+	a.validateFilters(bad)
 
 	idn("switch.idn", c.Switch.IDN)
 	if len(errs) == 0 {

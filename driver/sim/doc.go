@@ -73,10 +73,12 @@
 //	            hold_interval_s, hold_s, initial_range (-1 = none),
 //	            [[converter.ranges]] name, full_scale_vrms, time_constant_s
 //	[voltmeter] idn, ranges_v, over_range_fraction, noise_v, reset_nplc,
-//	            max_samples, query_latency_s (0 = none)
+//	            max_samples, query_latency_s,
+//	            [[dmm.filters]] from_hz, time_constant_s (0 = none)
 //	[dmm]       idn, ranges_vrms, over_range_fraction, noise_v, floor_vrms,
 //	            time_constant_s, bandwidth_hz (0 = none), reset_nplc,
-//	            max_samples, query_latency_s
+//	            max_samples, query_latency_s,
+//	            [[dmm.filters]] from_hz, time_constant_s
 //	[switch]    idn
 //
 // Section kinds: "highpass1", "lowpass1" (first order, corner freq_hz),

@@ -20,6 +20,9 @@ func (s *sweeper) ranges() []driver.Range { return s.inst.Converter.Ranges() }
 // tau returns the time constant of the converter's present range,
 // physical seconds (0: unknown or none).
 func (s *sweeper) tau() float64 {
+	if s.inst.Converter == nil && s.inst.ACVoltmeter != nil {
+		return s.acTau(s.bench.freqHz) // the AC meter's own settling
+	}
 	if s.inst.Converter == nil || !s.bench.rangeKnown {
 		return 0
 	}
@@ -177,6 +180,10 @@ func (s *sweeper) configure(ctx context.Context, freqHz float64) error {
 	if err != nil && !errors.Is(err, settle.ErrNoAperture) {
 		return err
 	}
+	if s.inst.Converter == nil && tau <= 0 && m.Fixed {
+		// An AC meter stating no settling: its reading is its own RMS.
+		rd = settle.Reading{ApertureS: m.Shortest(), Average: 1}
+	}
 	ap := driver.Aperture{Seconds: rd.ApertureS}
 	switch {
 	case m.Fixed:
@@ -202,7 +209,7 @@ func (s *sweeper) configure(ctx context.Context, freqHz float64) error {
 		s.bench.dcCfg, s.bench.cfgOK = cfg, true
 		return nil
 	}
-	cfg := driver.ACConfig{Aperture: ap}
+	cfg := driver.ACConfig{Aperture: ap, RangeVrms: s.acRange(s.bench.acExpect)}
 	if s.bench.cfgOK && cfg == s.bench.acCfg {
 		return nil
 	}

@@ -139,11 +139,12 @@ func (p *pointRun) step(ctx context.Context) error {
 		}
 		s.bench.freqHz, s.bench.freqSet = p.freqHz, true
 	}
-	if err := s.configure(ctx, p.freqHz); err != nil {
-		return err
-	}
 	if p.predicted {
 		p.v1 = p.gEst * s.bench.ampVrms
+	}
+	s.bench.acExpect = p.v1
+	if err := s.configure(ctx, p.freqHz); err != nil {
+		return err
 	}
 	if err := s.setOutput(ctx, true, p.v1); err != nil {
 		return err
@@ -338,8 +339,12 @@ func (p *pointRun) overRange(ctx context.Context, ts, v float64) (reaction, erro
 	s := p.s
 	p.over = true
 	vEst := p.last.Vrms
-	sat := s.saturated(p.last, p.clipped)
-	if sat {
+	sat := false
+	if s.inst.Converter == nil {
+		if up, err := s.acOverload(ctx, p.freqHz); err != nil || up {
+			return remeasure, err
+		}
+	} else if sat = s.saturated(p.last, p.clipped); sat {
 		vEst = p.satBound(ts)
 	}
 	if s.inst.Converter != nil && s.plan.Ranging.Strategy != plan.RangeFixed {

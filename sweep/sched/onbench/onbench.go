@@ -31,6 +31,9 @@ func Instruments(b *bench.Bench, log zerolog.Logger) sched.Instruments {
 	}
 	if b.Config != nil {
 		in.Meter = Meter(b.Config)
+		if d := b.Config.DMM; d != nil && b.Config.VoltmeterMode == profile.ModeACDMM {
+			in.ACRangeVrms = d.RangeVrms
+		}
 		if c := b.Config.Converter; c != nil && c.Spec != nil {
 			in.HoldIntervalS, in.HoldS = c.Spec.HoldIntervalS, c.Spec.HoldS
 		}
@@ -61,9 +64,12 @@ func Meter(cfg *profile.BenchFile) settle.Meter {
 	case cfg.DMM != nil && cfg.DMM.DMM != nil && cfg.DMM.DMM.AC != nil:
 		d := cfg.DMM.DMM
 		line = d.LineHz
-		nplcs, minS, maxS = d.AC.NPLC, d.AC.MinApertureS, d.AC.MaxApertureS
+		nplcs, minS, maxS, fixedS = d.AC.NPLC, d.AC.MinApertureS, d.AC.MaxApertureS, d.AC.FixedApertureS
 		base = cfg.DMM.ACConfig().Aperture.Duration(line)
 		singles = true
+		if len(nplcs) == 0 && maxS == 0 && fixedS == 0 {
+			fixedS = 1 / line // not stated: one power-line cycle assumed
+		}
 	}
 	if maxS > 0 {
 		lo := math.Max(minS, base)
@@ -100,6 +106,9 @@ func Timing(cfg *profile.BenchFile, p *plan.Plan, slopeDBPerDecade float64) *set
 	if c := cfg.Converter; c != nil && c.Spec != nil {
 		t.Ranges = c.Spec.DriverRanges()
 		t.Window = c.Spec.Window()
+	}
+	if d := cfg.DMM; d != nil && d.DMM != nil && d.DMM.AC != nil && cfg.VoltmeterMode == profile.ModeACDMM {
+		t.ACTauS = d.DMM.AC.SettleTauS
 	}
 	return t
 }
