@@ -482,7 +482,9 @@ func checkMeterProfile(p *problems, sect string, rng float64, rangeKey string, n
 		if n == 0 {
 			n = defNPLC
 		}
-		if n > 0 && !contains(nplcs, n) {
+		if n > 0 && len(nplcs) == 0 {
+			p.add(sect+".nplc", n, "absent: the profile sets no NPLC (the instrument's own integration time is used)", "NPLC not available")
+		} else if n > 0 && !contains(nplcs, n) {
 			p.add(sect+".nplc", n, "one of "+formatValue(nplcs), "NPLC not available")
 		}
 	}

@@ -38,11 +38,19 @@ import (
 //     err-ours and err-fixed are the worst relative gain errors against
 //     the simulated DUT's analytic response (corrected by the converter's
 //     mean bias, settle.MeanFactor), for the reader to check.
+//   - x-bound-plain: our sweep's duration over the least time for its
+//     points in its order: the first-order settle from each point's value
+//     to the next's within the tolerance (settle.DwellS), plus the plan's
+//     readings (at least two) with the reading plan above: how near the
+//     waiting is to the physics. Where the response falls by a step
+//     larger than the tolerance at every point (a roll-off at 12 points
+//     per decade), that settle alone is several τ, and ln(1/ε)·τ is
+//     only 6.2 τ: no waiting strategy is three times quicker there.
 //   - points-per-s: our sweep's points per model second.
 func BenchmarkPlainMeterSweep(b *testing.B) {
 	const scale = 4
 	p := demoPlan(b)
-	var xf, ours, fixed, pps, errOurs, errFixed float64
+	var xf, xb, ours, fixed, pps, errOurs, errFixed float64
 	for i := 0; i < b.N; i++ {
 		cfg := plainConfig(b, "plain-bench.toml", scale)
 		bn, run := newRun(b, cfg, p, b.TempDir())
@@ -51,6 +59,7 @@ func BenchmarkPlainMeterSweep(b *testing.B) {
 		durS := bn.Sim.ModelTime() - t0
 		taus := rangeTaus(bn)
 		e := plainWorstErr(bn, res.points, taus)
+		bound := plainBoundS(cfg, res.points, taus, p.Settle.Tolerance, max(2, p.Settle.Readings), bn.Sim.Config().Voltmeter.QueryLatencyS)
 		run.Close()
 		bn.Close()
 		if res.err != nil {
@@ -62,6 +71,7 @@ func BenchmarkPlainMeterSweep(b *testing.B) {
 		}
 		b.Logf("ours %d points in %.2f model-s (worst %.3g), fixed delay %.2f model-s (worst %.3g)", len(res.points), durS, e, fr.durS, fr.worstRel)
 		xf += fr.durS / durS
+		xb += durS / bound
 		ours += durS
 		fixed += fr.durS
 		pps += float64(len(res.points)) / durS
@@ -70,11 +80,28 @@ func BenchmarkPlainMeterSweep(b *testing.B) {
 	}
 	n := float64(b.N)
 	b.ReportMetric(xf/n, "x-fixed-delay-plain")
+	b.ReportMetric(xb/n, "x-bound-plain")
 	b.ReportMetric(ours/n, "sweep-model-s")
 	b.ReportMetric(fixed/n, "fixed-model-s")
 	b.ReportMetric(pps/n, "points-per-s")
 	b.ReportMetric(errOurs/n, "err-ours")
 	b.ReportMetric(errFixed/n, "err-fixed")
+}
+
+// plainBoundS is the least time for the points pts in their order (see
+// BenchmarkPlainMeterSweep): the exact first-order settle between
+// consecutive values plus n readings each.
+func plainBoundS(cfg *profile.BenchFile, pts []point.Point, taus []float64, tol float64, n int, latencyS float64) float64 {
+	m := onbench.Meter(cfg)
+	m.OverheadS = latencyS
+	prev, sum := 0.0, 0.0
+	for _, pt := range pts {
+		tau := taus[pt.RangeIndex]
+		rd, _ := settle.ChooseAperture(pt.FreqHz, tau, 0.25*tol, m)
+		sum += settle.DwellS(tau, prev, pt.VoutVrms, tol) + float64(n)*rd.TimeS(m)
+		prev = pt.VoutVrms
+	}
+	return sum
 }
 
 // plainWorstErr is the worst relative error of the unflagged points

@@ -3,10 +3,10 @@ package sched_test
 import (
 	"context"
 	"errors"
-	"math"
 	"os"
 	"path"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"rolloff/configs"
@@ -81,7 +81,6 @@ func TestPlainMeterProfileNeedsFixedAperture(t *testing.T) {
 	if !errors.As(err, &fe) || fe.Field != "dc.fixed_aperture_s" {
 		t.Fatalf("profile without fixed_aperture_s: %v, want an error on dc.fixed_aperture_s", err)
 	}
-	_ = math.Pi
 }
 
 func splitLines(b []byte) [][]byte {
@@ -98,4 +97,31 @@ func splitLines(b []byte) [][]byte {
 		b = b[i:]
 	}
 	return out
+}
+
+// TestPlainMeterBenchNPLC: a bench naming no integration time on a meter
+// that cannot set one is accepted (the bench's 1 NPLC default applies only
+// where the profile sets NPLC), and one that names an NPLC is refused on
+// the key written.
+func TestPlainMeterBenchNPLC(t *testing.T) {
+	cfg := plainConfig(t, "plain-bench.toml", 4)
+	if a := cfg.DCConfig().Aperture; a.NPLC != 0 || a.Seconds != 0 {
+		t.Errorf("aperture %+v asked of a meter that sets none", a)
+	}
+	data, err := os.ReadFile(filepath.Join("testdata", "plain", "plain-bench.toml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	bad := []byte(strings.Replace(string(data), "range_v = 0\n", "range_v = 0\nnplc = 1\n", 1))
+	read := func(n string) ([]byte, error) {
+		if d, err := os.ReadFile(filepath.Join("testdata", "plain", n)); err == nil {
+			return d, nil
+		}
+		return configs.ReadFile(path.Base(n))
+	}
+	_, err = profile.DecodeBench("plain-bench.toml", bad, read, func(rel string) string { return rel })
+	var fe *profile.FieldError
+	if !errors.As(err, &fe) || fe.Field != "voltmeter.nplc" {
+		t.Errorf("nplc on a meter without NPLC: %v", err)
+	}
 }
