@@ -15,7 +15,11 @@ func TestACFilters(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	good := string(data) + "\n[[ac.filters]]\nfrom_hz = 3\ntime_constant_s = 0.5\n[[ac.filters]]\nfrom_hz = 20\ntime_constant_s = 0.05\n"
+	base := string(data)
+	if i := strings.Index(base, "\n[[ac.filters]]"); i >= 0 {
+		base = base[:i] // the shipped bands, replaced below
+	}
+	good := base + "\n[[ac.filters]]\nfrom_hz = 3\ntime_constant_s = 0.5\n[[ac.filters]]\nfrom_hz = 20\ntime_constant_s = 0.05\n"
 	d, err := DecodeDMM("dmm.toml", []byte(good))
 	if err != nil {
 		t.Fatal(err)
