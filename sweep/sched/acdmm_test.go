@@ -7,6 +7,8 @@ import (
 	"os"
 	"path"
 	"path/filepath"
+	"strconv"
+	"strings"
 	"testing"
 
 	"rolloff/configs"
@@ -101,10 +103,23 @@ func acdmmRun(t *testing.T, p *plan.Plan, scale float64) (flatS, steepS, runS fl
 	if res.err != nil {
 		t.Fatal(res.err)
 	}
+	// The range follows the expected level (at most 0.55 Vrms here: the
+	// 1 V range) after the first point, on the bench's range_vrms (10 V).
+	ranges := map[float64]bool{}
 	for _, cmd := range bn.Sim.Received("dmm") {
 		if contains(cmd, "AUTO") || contains(cmd, "NPLC") || contains(cmd, "APER") {
 			t.Errorf("sent %q to a DMM whose profile has no such command", cmd)
 		}
+		if f := strings.Fields(cmd); len(f) == 2 && strings.HasSuffix(f[0], ":RANGe") {
+			v, err := strconv.ParseFloat(f[1], 64)
+			if err != nil {
+				t.Fatalf("%q: %v", cmd, err)
+			}
+			ranges[v] = true
+		}
+	}
+	if !ranges[1] || len(ranges) > 2 || (len(ranges) == 2 && !ranges[10]) {
+		t.Errorf("AC ranges sent %v, want 1 V (and 10 V for the first point)", ranges)
 	}
 	for _, pt := range res.points {
 		// The DMM reads the mean of the square root of its averaged mean
