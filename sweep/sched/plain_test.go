@@ -44,9 +44,10 @@ func plainConfig(t testing.TB, name string, scale float64) *profile.BenchFile {
 // readings (no bursts) with no integration-time command, 25 ms per
 // query, on a converter of 0.15 s: the run must neither ask for a burst
 // nor for an NPLC, and every point must agree with the simulated DUT's
-// analytic response.
+// analytic response. Time scale 2: spaced readings need their start
+// times, and a wall-clock delay under load counts double in model time.
 func TestPlainMeterSweep(t *testing.T) {
-	cfg := plainConfig(t, "plain-bench.toml", 4)
+	cfg := plainConfig(t, "plain-bench.toml", 2)
 	p := shortPlan(plan.RangeRemote)
 	res := sweepOn(t, context.Background(), cfg, p, sched.Opts{NoAnalysis: true}, nil)
 	if res.err != nil {
