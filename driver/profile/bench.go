@@ -95,7 +95,9 @@ type DCMeterRole struct {
 	// converter's over-range output.
 	RangeV float64 `toml:"range_v"`
 	// NPLC or ApertureS is the integration time (at most one of them).
-	// Default 1 NPLC (whole line cycles reject hum on the DC output).
+	// Default 1 NPLC (whole line cycles reject hum on the DC output)
+	// where the profile can set NPLC (see DefaultNPLC); else the
+	// instrument's own.
 	NPLC      float64 `toml:"nplc"`
 	ApertureS float64 `toml:"aperture_s"`
 
@@ -129,7 +131,11 @@ func (b *BenchFile) DCConfig() driver.DCConfig {
 	if v == nil {
 		return driver.DCConfig{}
 	}
-	cfg := driver.DCConfig{RangeV: v.RangeV, Aperture: aperture(v.NPLC, v.ApertureS, 1)}
+	def := 1.0 // before the profile is resolved
+	if v.DMM != nil {
+		def = DefaultNPLC(v.DMM.DC.NPLC)
+	}
+	cfg := driver.DCConfig{RangeV: v.RangeV, Aperture: aperture(v.NPLC, v.ApertureS, def)}
 	if cfg.RangeV == 0 && v.DMM != nil && b.Converter != nil && b.Converter.Spec != nil {
 		c := b.Converter.Spec
 		cfg.RangeV, _ = PickRange(v.DMM.DC.RangesV, c.DCFullScaleV*c.OverFraction, v.DMM.RangeHeadroom)
@@ -440,7 +446,7 @@ func (b *BenchFile) crossCheck(p *problems) {
 		}
 	}
 	if v := b.Voltmeter; v != nil && v.DMM != nil {
-		checkMeterProfile(p, "voltmeter", v.RangeV, "range_v", v.NPLC, v.ApertureS, 1, v.DMM.DC.RangesV, v.DMM.DC.NPLC, v.DMM.DC.MinApertureS, v.DMM.DC.MaxApertureS)
+		checkMeterProfile(p, "voltmeter", v.RangeV, "range_v", v.NPLC, v.ApertureS, DefaultNPLC(v.DMM.DC.NPLC), v.DMM.DC.RangesV, v.DMM.DC.NPLC, v.DMM.DC.MinApertureS, v.DMM.DC.MaxApertureS)
 		if v.RangeV == 0 && b.Converter != nil && b.Converter.Spec != nil {
 			c := b.Converter.Spec
 			if _, ok := PickRange(v.DMM.DC.RangesV, c.DCFullScaleV*c.OverFraction, v.DMM.RangeHeadroom); !ok {
@@ -476,7 +482,9 @@ func checkMeterProfile(p *problems, sect string, rng float64, rangeKey string, n
 		if n == 0 {
 			n = defNPLC
 		}
-		if n > 0 && !contains(nplcs, n) {
+		if n > 0 && len(nplcs) == 0 {
+			p.add(sect+".nplc", n, "absent: the profile sets no NPLC (the instrument's own integration time is used)", "NPLC not available")
+		} else if n > 0 && !contains(nplcs, n) {
 			p.add(sect+".nplc", n, "one of "+formatValue(nplcs), "NPLC not available")
 		}
 	}

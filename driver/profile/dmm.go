@@ -48,6 +48,10 @@ type DMMDC struct {
 	// means no aperture setting.
 	MinApertureS float64 `toml:"min_aperture_s"`
 	MaxApertureS float64 `toml:"max_aperture_s"`
+	// FixedApertureS is the integration time, seconds, of a meter that
+	// cannot set it (no nplc, no aperture bounds): the ripple bound and
+	// the reading plan use it. Required then, refused otherwise.
+	FixedApertureS float64 `toml:"fixed_aperture_s"`
 	// Configure selects the DC voltage function. No placeholders.
 	// Optional (a meter that answers MEASure only needs none).
 	Configure Cmds `toml:"configure"`
@@ -89,6 +93,12 @@ type DMMAC struct {
 	SetNPLC      Cmds      `toml:"set_nplc"`
 	SetAperture  Cmds      `toml:"set_aperture"`
 	Read         Cmds      `toml:"read"`
+	// FixedApertureS is the integration time of a reading, seconds, where
+	// the profile sets none (see ACTiming); optional.
+	FixedApertureS float64 `toml:"fixed_aperture_s"`
+	// Filters is the meter's own RMS settling, per frequency band (see
+	// ACFilter); optional.
+	Filters []ACFilter `toml:"filters"`
 }
 
 // DMMTmpl are the compiled DMM templates. Optional ones are nil.
@@ -154,6 +164,7 @@ func (d *DMM) validate(p *problems) {
 	t.SetSampleCount = compileSeq(p, "set_sample_count", d.SetSampleCount, d.MaxSamples > 1, "count")
 	validateRanges(p, "dc.ranges_v", d.DC.RangesV, 1e-3, 1e4)
 	validateAperture(p, "dc", d.DC.NPLC, d.DC.MinApertureS, d.DC.MaxApertureS)
+	validateFixedAperture(p, "dc", d.DC.FixedApertureS, len(d.DC.NPLC) > 0 || d.DC.MaxApertureS > 0)
 	t.DCConfigure = compileSeq(p, "dc.configure", d.DC.Configure, false)
 	dcRangeInRead := readCarries(d.DC.Read, "range_v")
 	t.DCSetRange = compileSeq(p, "dc.set_range", d.DC.SetRange, !dcRangeInRead, "range_v")
@@ -189,6 +200,7 @@ func (d *DMM) validate(p *problems) {
 		if acRangeInRead && !ac.SetAutoRange.Empty() {
 			p.add("ac.set_auto_range", cmdsValue(ac.SetAutoRange), `"" when ac.read carries {range_vrms} (the range goes with each reading)`, "autorange and a range in every reading")
 		}
+		ac.validateTiming(p)
 	}
 }
 

@@ -129,6 +129,7 @@ func cloneConfig(c Config) Config {
 	c.Voltmeter.RangesV = append([]float64(nil), c.Voltmeter.RangesV...)
 	c.DMM.RangesVrms = append([]float64(nil), c.DMM.RangesVrms...)
 	c.Spec = c.Spec.clone()
+	c.DMM.Filters = append([]DMMFilter(nil), c.DMM.Filters...)
 	return c
 }
 
@@ -275,7 +276,7 @@ func (b *Bench) applyLocked(t float64) {
 	b.conv.SetInput(t, model.Analyze(sig, &b.dut, b.cfg.Converter.DroopHz, h), b.sigTS)
 	ms := model.Analyze(sig, &b.dut, b.cfg.DMM.BandwidthHz, h)
 	ms.C0 += b.cfg.DMM.FloorVrms * b.cfg.DMM.FloorVrms
-	b.dmm.Set(t, ms, b.sigTS, b.cfg.DMM.TimeConstantS, 0)
+	b.dmm.Set(t, ms, b.sigTS, b.cfg.DMM.tauAt(sig.FreqHz), 0)
 }
 
 // OutputOn reports whether the generator output is on.

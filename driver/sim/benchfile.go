@@ -115,6 +115,9 @@ func syncMeters(b *profile.BenchFile, c *Config, add func(key string, value any,
 		if !listed("sim.voltmeter.over_range_fraction") {
 			c.Voltmeter.OverRangeFraction = v.DMM.RangeHeadroom - 1
 		}
+		if fx := v.DMM.DC.FixedApertureS; fx > 0 && !listed("sim.voltmeter.reset_nplc") {
+			c.Voltmeter.ResetNPLC = fx * v.DMM.LineHz // the profile's fixed integration time
+		}
 		lineHz, lineFrom = v.DMM.LineHz, v.DMM.File
 	}
 	if d := b.DMM; d != nil && d.DMM != nil && d.DMM.AC != nil {
@@ -126,6 +129,15 @@ func syncMeters(b *profile.BenchFile, c *Config, add func(key string, value any,
 		}
 		if !listed("sim.dmm.over_range_fraction") {
 			c.DMM.OverRangeFraction = d.DMM.RangeHeadroom - 1
+		}
+		if fx := d.DMM.AC.FixedApertureS; fx > 0 && !listed("sim.dmm.reset_nplc") {
+			c.DMM.ResetNPLC = fx * d.DMM.LineHz // the profile's fixed integration time
+		}
+		if fs := d.DMM.AC.Filters; len(fs) > 0 && !listed("sim.dmm.filters") {
+			c.DMM.Filters = nil
+			for _, f := range fs {
+				c.DMM.Filters = append(c.DMM.Filters, DMMFilter{FromHz: f.FromHz, TimeConstantS: f.TimeConstantS})
+			}
 		}
 		lineHz, lineFrom = d.DMM.LineHz, d.DMM.File
 	}

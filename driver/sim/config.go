@@ -153,6 +153,9 @@ type VoltmeterConfig struct {
 	// Personality is the voltmeter's SCPI dialect: "" (the full command
 	// set) or one of MeterPersonalities.
 	Personality string `toml:"personality"`
+	// QueryLatencyS is the model time a reading's answer takes after the
+	// measurement (trigger, conversion, transfer); 0: none.
+	QueryLatencyS float64 `toml:"query_latency_s"`
 }
 
 // DMMConfig is the AC DMM reading the DUT output's true RMS directly.
@@ -173,6 +176,11 @@ type DMMConfig struct {
 	MaxSamples  int     `toml:"max_samples"`
 	// Personality is the DMM's SCPI dialect, as for the voltmeter.
 	Personality string `toml:"personality"`
+	// QueryLatencyS is as for the voltmeter.
+	QueryLatencyS float64 `toml:"query_latency_s"`
+	// Filters, when given, set the averaging time constant per frequency
+	// band (see DMMFilter).
+	Filters []DMMFilter `toml:"filters"`
 }
 
 // SwitchConfig is the relay instrument selecting the converter range;
@@ -443,6 +451,7 @@ func (c *Config) Validate() error {
 	if m.MaxSamples < 1 || m.MaxSamples > 100000 {
 		bad("voltmeter.max_samples", m.MaxSamples, "1..100000")
 	}
+	between("voltmeter.query_latency_s", m.QueryLatencyS, 0, maxQueryLatencyS)
 
 	a := &c.DMM
 	idn("dmm.idn", a.IDN)
@@ -456,6 +465,8 @@ func (c *Config) Validate() error {
 	if a.MaxSamples < 1 || a.MaxSamples > 100000 {
 		bad("dmm.max_samples", a.MaxSamples, "1..100000")
 	}
+	between("dmm.query_latency_s", a.QueryLatencyS, 0, maxQueryLatencyS)
+	a.validateFilters(bad)
 
 	idn("switch.idn", c.Switch.IDN)
 	errs = append(errs, c.validateSystematic()...)

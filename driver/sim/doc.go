@@ -87,10 +87,12 @@
 //	            hold_interval_s, hold_s, initial_range (-1 = none),
 //	            [[converter.ranges]] name, full_scale_vrms, time_constant_s
 //	[voltmeter] idn, ranges_v, over_range_fraction, noise_v, reset_nplc,
-//	            max_samples, personality
+//	            max_samples, personality, query_latency_s,
+//	            [[dmm.filters]] from_hz, time_constant_s (0 = none)
 //	[dmm]       idn, ranges_vrms, over_range_fraction, noise_v, floor_vrms,
 //	            time_constant_s, bandwidth_hz (0 = none), reset_nplc,
-//	            max_samples, personality
+//	            max_samples, personality, query_latency_s,
+//	            [[dmm.filters]] from_hz, time_constant_s
 //	[switch]    idn
 //	[spec.converter] range_gain_pct, linearity_pct,
 //	            [[spec.converter.flatness]] ranges, from_hz, to_hz, flatness_pct

@@ -127,7 +127,7 @@ func (m *meter) fetch(ctx context.Context) ([]float64, error) {
 	}
 	b.mu.Unlock()
 	ms.readings = out
-	return out, nil
+	return out, m.queryLatency(ctx)
 }
 
 // rangeReading applies the range: autorange picks the smallest range

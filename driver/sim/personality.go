@@ -227,6 +227,13 @@ func (b *Bench) opcMuteCommands(d *scpiserver.Device) {
 				return "", scpiserver.Errorf(scpiserver.ExecutionError, "aborted")
 			}
 		}
+		// The output is back before the answer says so: the timer that
+		// ends the mute may not have run yet on a loaded machine.
+		b.mu.Lock()
+		if !b.closed {
+			b.applyLocked(b.now())
+		}
+		b.mu.Unlock()
 		return "1", nil
 	})
 }

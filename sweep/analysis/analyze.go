@@ -118,6 +118,7 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 	if r.HighHz == nil {
 		r.HighBeyondHz = ptr(r.SweepHz[1])
 	}
+	r.noteUnderRange()
 	if r.CornerSource == "model" {
 		// Slopes are measured on the data, beyond the reported corners.
 		r.SlopeLow = a.slopeBeyond(r.LowHz, true)

@@ -40,6 +40,10 @@ func (r *Result) Report(w io.Writer) error {
 			p("%-13s %s [%s]", name+":", FormatHz(*hz, 4), r.CornerSource)
 		case low && r.DCCoupled:
 			p("%-13s none: DC-coupled (flat down to %s)", name+":", FormatHz(*beyond, 4))
+		case low && r.LowUnderRangeHz != nil:
+			p("%-13s not measurable on this range (under-range up to %s; no crossing at or above %s)", name+":", FormatHz(*r.LowUnderRangeHz, 4), FormatHz(*beyond, 4))
+		case !low && r.HighUnderRangeFromHz != nil:
+			p("%-13s not measurable on this range (under-range from %s; no crossing at or below %s)", name+":", FormatHz(*r.HighUnderRangeFromHz, 4), FormatHz(*beyond, 4))
 		case low:
 			p("%-13s below the sweep (no crossing at or above %s)", name+":", FormatHz(*beyond, 4))
 		default:

@@ -27,6 +27,12 @@ type Result struct {
 	HighUHz      *float64 `json:"high_u_hz"` // expanded uncertainty of HighHz
 	LowBeyondHz  *float64 `json:"low_beyond_hz"`
 	HighBeyondHz *float64 `json:"high_beyond_hz"`
+	// HighUnderRangeFromHz, when the high corner is not found, is the
+	// lowest frequency above the sweep's included points left out as
+	// under range: the sweep went on, but the range could not read the
+	// response there (LowUnderRangeHz: the highest such below them).
+	HighUnderRangeFromHz *float64 `json:"high_under_range_from_hz,omitempty"`
+	LowUnderRangeHz      *float64 `json:"low_under_range_hz,omitempty"`
 	// DCCoupled is set when there is no lower corner and the response is
 	// flat down to the lowest frequency swept: the accepted model has no
 	// high-pass section or, without an accepted model, the slope over the

@@ -20,6 +20,9 @@ func (s *sweeper) ranges() []driver.Range { return s.inst.Converter.Ranges() }
 // tau returns the time constant of the converter's present range,
 // physical seconds (0: unknown or none).
 func (s *sweeper) tau() float64 {
+	if s.inst.Converter == nil && s.inst.ACVoltmeter != nil {
+		return s.acTau(s.bench.freqHz) // the AC meter's own settling
+	}
 	if s.inst.Converter == nil || !s.bench.rangeKnown {
 		return 0
 	}
@@ -97,26 +100,19 @@ func (s *sweeper) setAmplitude(ctx context.Context, vrms float64) error {
 	return nil
 }
 
-// readOnce takes one (possibly burst-averaged) reading: the DC output
-// volts (converter) or Vrms (AC voltmeter).
+// readOnce takes one (possibly averaged) reading: the DC output volts
+// (converter) or Vrms (AC voltmeter). The readings averaged are one burst
+// where the voltmeter takes one that long, else single readings, spaced
+// as the reading plan says.
 func (s *sweeper) readOnce(ctx context.Context) (float64, error) {
 	n := max(1, s.bench.reading.Average)
 	r := s.r
 	if s.inst.Converter == nil || s.inst.DCVoltmeter == nil {
 		ac := s.inst.ACVoltmeter
-		var sum float64
-		for k := 0; k < n; k++ {
-			var v float64
-			err := r.try(ctx, "AC reading", func(ctx context.Context) (err error) { v, err = ac.ReadAC(ctx); return })
-			if err != nil {
-				return 0, err
-			}
-			sum += v
-		}
-		return sum / float64(n), nil
+		return s.singles(ctx, n, "AC reading", ac.ReadAC)
 	}
 	dvm := s.inst.DCVoltmeter
-	if br, ok := dvm.(driver.BurstReader); ok && n > 1 {
+	if br, ok := dvm.(driver.BurstReader); ok && n > 1 && n <= maxBurst(dvm) {
 		var vs []float64
 		err := r.try(ctx, "DC burst", func(ctx context.Context) (err error) { vs, err = br.ReadBurst(ctx, n); return })
 		if err != nil {
@@ -131,10 +127,24 @@ func (s *sweeper) readOnce(ctx context.Context) (float64, error) {
 		}
 		return sum / float64(len(vs)), nil
 	}
+	return s.singles(ctx, n, "DC reading", dvm.ReadDC)
+}
+
+// singles averages n single readings of read, each started
+// bench.reading.SpacingS after the one before when that is set.
+func (s *sweeper) singles(ctx context.Context, n int, what string, read func(context.Context) (float64, error)) (float64, error) {
+	r := s.r
+	sp := s.bench.reading.SpacingS
+	t0 := r.phys()
 	var sum float64
 	for k := 0; k < n; k++ {
+		if k > 0 && sp > 0 {
+			if err := r.sleepUntil(ctx, t0+float64(k)*sp); err != nil {
+				return 0, err
+			}
+		}
 		var v float64
-		err := r.try(ctx, "DC reading", func(ctx context.Context) (err error) { v, err = dvm.ReadDC(ctx); return })
+		err := r.try(ctx, what, func(ctx context.Context) (err error) { v, err = read(ctx); return })
 		if err != nil {
 			return 0, err
 		}
@@ -152,6 +162,12 @@ func (s *sweeper) meter() settle.Meter {
 		}
 		m = settle.NPLCMeter([]float64{1, 10}, line, 0)
 	}
+	if s.bench.latencyS > m.OverheadS {
+		m.OverheadS = s.bench.latencyS
+	}
+	if mb, ok := s.inst.DCVoltmeter.(MaxBurster); ok && s.inst.Converter != nil && mb.MaxBurst() <= 1 {
+		m.Singles = true // a meter saying it takes no bursts
+	}
 	return m
 }
 
@@ -164,8 +180,15 @@ func (s *sweeper) configure(ctx context.Context, freqHz float64) error {
 	if err != nil && !errors.Is(err, settle.ErrNoAperture) {
 		return err
 	}
+	if s.inst.Converter == nil && tau <= 0 && m.Fixed {
+		// An AC meter stating no settling: its reading is its own RMS.
+		rd = settle.Reading{ApertureS: m.Shortest(), Average: 1}
+	}
 	ap := driver.Aperture{Seconds: rd.ApertureS}
-	if m.LineHz > 0 {
+	switch {
+	case m.Fixed:
+		ap = driver.Aperture{} // the instrument's own
+	case m.LineHz > 0:
 		ap = driver.Aperture{NPLC: math.Round(rd.ApertureS*m.LineHz*1e9) / 1e9}
 	}
 	s.bench.reading = rd
@@ -186,7 +209,7 @@ func (s *sweeper) configure(ctx context.Context, freqHz float64) error {
 		s.bench.dcCfg, s.bench.cfgOK = cfg, true
 		return nil
 	}
-	cfg := driver.ACConfig{Aperture: ap}
+	cfg := driver.ACConfig{Aperture: ap, RangeVrms: s.acRange(s.bench.acExpect)}
 	if s.bench.cfgOK && cfg == s.bench.acCfg {
 		return nil
 	}

@@ -79,7 +79,21 @@
 // level moves the generator amplitude within the plan's bounds and the
 // bench's MaxVrms, the gain taken from the actual amplitude. Over-range
 // acts at once; under-range after the readings converge; both are
-// foreseen from the predicted output where possible.
+// foreseen from the predicted output where possible. A reading under the
+// converter's floor only bounds the output from above, a saturated one
+// only from below: the range chosen then is the one on which the output
+// is known next (hunt.go), at most two changes from any starting range.
+//
+// # Meters
+//
+// A voltmeter without bursts (MaxBurster saying 1) reads single values;
+// where the ripple needs an average they are spaced on whole fractions of
+// its period (settle.Reading.SpacingS), and their query round trip, timed
+// when the run starts, is part of every reading's cost. A meter that
+// cannot set its integration time (settle.Meter.Fixed) is sent none. An
+// AC-reading DMM (no converter) is paced by its own RMS filter
+// (ACSettler) and, without autorange, ranged from the expected level
+// (ACRanger).
 //
 // # Faults and resume
 //

@@ -43,7 +43,10 @@ func (s *sweeper) holdGuard(tStep, dwell, v1 float64, known bool) (notBefore, pr
 	case dwell > s.plan.Settle.MinDwellS || !known || !(s.hold.vRef > 0):
 		s.hold.tOK, s.hold.vRef = tStep+dwell, v1
 		readS := s.bench.reading.TimeS(s.meter())
-		if p := dwell - s.tau()*math.Log(1.5); p > readS && p < dwell {
+		// The probe ends before the window's first reading begins: a
+		// reading spanning both (spaced single readings, long) would make
+		// them agree and fake a hold.
+		if p := dwell - s.tau()*math.Log(1.5); p > readS && p < dwell && s.tau()*math.Log(1.5) >= readS {
 			return dwell, p
 		}
 		return dwell, -1

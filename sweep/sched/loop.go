@@ -260,7 +260,7 @@ func (s *sweeper) prepare(ctx context.Context) error {
 		return fmt.Errorf("sched: prepare: %w", err)
 	}
 	if s.inst.Converter == nil || s.inst.DCVoltmeter == nil {
-		return nil
+		return s.measureLatency(ctx)
 	}
 	// The starting range.
 	start := -1
@@ -331,7 +331,7 @@ func (s *sweeper) prepare(ctx context.Context) error {
 	r.mu.Lock()
 	r.status.RangeIndex, r.status.Range = s.bench.rangeIdx, s.rangeName(s.bench.rangeIdx)
 	r.mu.Unlock()
-	return nil
+	return s.measureLatency(ctx)
 }
 
 func (s *sweeper) lastPoint() *point.Point {

@@ -139,11 +139,12 @@ func (p *pointRun) step(ctx context.Context) error {
 		}
 		s.bench.freqHz, s.bench.freqSet = p.freqHz, true
 	}
-	if err := s.configure(ctx, p.freqHz); err != nil {
-		return err
-	}
 	if p.predicted {
 		p.v1 = p.gEst * s.bench.ampVrms
+	}
+	s.bench.acExpect = p.v1
+	if err := s.configure(ctx, p.freqHz); err != nil {
+		return err
 	}
 	if err := s.setOutput(ctx, true, p.v1); err != nil {
 		return err
@@ -227,7 +228,7 @@ func (p *pointRun) planDwell(ctx context.Context) error {
 		// No prediction (the first point): a reading at τ/2 already
 		// tells the range or level the point needs, a full dwell sooner.
 		probe = -1
-		wake = math.Min(wake, math.Max(0, tau/2-readS))
+		wake = math.Min(wake, math.Max(0, s.scoutAtS(tau)-s.singleS()))
 	}
 	p.probe = probe
 	if err := s.observeDwell(ctx, p.tStep, p.tStep+wake, p.y0, p.v1, p.predicted); err != nil {
@@ -257,7 +258,11 @@ func (p *pointRun) read(ctx context.Context) (again bool, err error) {
 			return false, err
 		}
 		t0 := r.phys()
-		v, err := s.readOnce(ctx)
+		read := s.readOnce
+		if p.scout {
+			read = s.readSingle // its time must be known to invert the response
+		}
+		v, err := read(ctx)
 		t1 := r.phys()
 		if err != nil && (errors.Is(err, driver.ErrOverload) || errors.Is(err, driver.ErrNegativeOverload)) {
 			p.clipped = true
@@ -334,11 +339,22 @@ func (p *pointRun) overRange(ctx context.Context, ts, v float64) (reaction, erro
 	s := p.s
 	p.over = true
 	vEst := p.last.Vrms
-	if !(vEst > 0) {
-		vEst = s.ranges()[s.bench.rangeIdx].FullScaleVrms * s.inst.Converter.Window().OverFraction * 3.2
+	sat := false
+	if s.inst.Converter == nil {
+		if up, err := s.acOverload(ctx, p.freqHz); err != nil || up {
+			return remeasure, err
+		}
+	} else if sat = s.saturated(p.last, p.clipped); sat {
+		vEst = p.satBound(ts)
 	}
 	if s.inst.Converter != nil && s.plan.Ranging.Strategy != plan.RangeFixed {
-		changed, err := s.guard(ctx, vEst, vEst/s.bench.ampVrms, p.freqHz, fmt.Sprintf("over-range at %s", analysis.FormatHz(p.freqHz, 4)))
+		var changed bool
+		var err error
+		if sat {
+			changed, err = s.guardBound(ctx, vEst, false, p.freqHz)
+		} else {
+			changed, err = s.guard(ctx, vEst, vEst/s.bench.ampVrms, p.freqHz, fmt.Sprintf("over-range at %s", analysis.FormatHz(p.freqHz, 4)))
+		}
 		if err != nil {
 			return stopRead, err
 		}
@@ -367,7 +383,13 @@ func (p *pointRun) scoutReading(ctx context.Context, ts float64) (reaction, erro
 	if y1 := settle.StepTarget(p.tau, p.y0, ts, p.last.Vrms*p.last.Vrms); y1 > 0 {
 		vEst := math.Sqrt(y1)
 		s.pred.scoutGain = vEst / s.bench.ampVrms
-		changed, err := s.guard(ctx, vEst, vEst/s.bench.ampVrms, p.freqHz, fmt.Sprintf("first reading %.4g Vrms at %s", vEst, analysis.FormatHz(p.freqHz, 4)))
+		var changed bool
+		var err error
+		if underFloor(p.last.FractionFS) {
+			changed, err = s.guardBound(ctx, vEst, true, p.freqHz)
+		} else {
+			changed, err = s.guard(ctx, vEst, vEst/s.bench.ampVrms, p.freqHz, fmt.Sprintf("first reading %.4g Vrms at %s", vEst, analysis.FormatHz(p.freqHz, 4)))
+		}
 		if err != nil {
 			return stopRead, err
 		}
@@ -577,7 +599,13 @@ func (p *pointRun) converterFlags(ctx context.Context, pt *point.Point, dcMean f
 	switch status {
 	case driver.UnderRange:
 		if p.cv.Converged() && mean > 0 {
-			changed, err := s.guard(ctx, mean, mean/s.bench.ampVrms, p.freqHz, fmt.Sprintf("under-range at %s", analysis.FormatHz(p.freqHz, 4)))
+			why := fmt.Sprintf("under-range at %s", analysis.FormatHz(p.freqHz, 4))
+			var changed bool
+			if underFloor(pt.FractionFS) {
+				changed, err = s.guardBound(ctx, mean, true, p.freqHz)
+			} else {
+				changed, err = s.guard(ctx, mean, mean/s.bench.ampVrms, p.freqHz, why)
+			}
 			if err != nil {
 				return false, err
 			}

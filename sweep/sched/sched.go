@@ -56,6 +56,9 @@ type Instruments struct {
 	Meter settle.Meter
 	// LineHz is the power-line frequency (default 50).
 	LineHz float64
+	// ACRangeVrms is the AC voltmeter's range for the first point where
+	// the sweep chooses it (an AC meter without autorange; 0: the highest).
+	ACRangeVrms float64
 	// DCRangeV is the DC voltmeter range for the converter output
 	// (default: the converter's DC full scale times its over fraction).
 	DCRangeV float64

@@ -38,6 +38,9 @@ type benchState struct {
 	dcCfg      driver.DCConfig
 	acCfg      driver.ACConfig
 	cfgOK      bool
+	latencyS   float64 // a single reading's round trip less its aperture, measured at the start (0: not)
+	acExpect   float64 // the AC meter's expected reading at the point, Vrms (0: unknown)
+	acFloor    int     // the smallest AC range index an overload left
 }
 
 // holdSchedule is what the scheduler has seen of the converter's

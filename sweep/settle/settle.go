@@ -204,8 +204,16 @@ type Meter struct {
 	// cycles (NPLC = aperture·LineHz).
 	LineHz float64
 	// OverheadS is the time a reading costs on top of its aperture
-	// (trigger, conversion, transfer).
+	// (trigger, conversion, transfer; on a meter of Singles, the query's
+	// round trip).
 	OverheadS float64
+	// Fixed says that the integration time cannot be set: AperturesS
+	// holds the instrument's own, one value, and nothing is sent.
+	Fixed bool
+	// Singles says that the meter takes no bursts: each reading is one
+	// query, so that readings averaged into one value may be spaced (see
+	// Reading.SpacingS).
+	Singles bool
 }
 
 // NPLCMeter returns the meter of a voltmeter set in power-line cycles.
@@ -258,6 +266,10 @@ type Reading struct {
 	// ResidualRel is the predicted relative ripple amplitude left on one
 	// (averaged) value.
 	ResidualRel float64
+	// SpacingS, when positive, is the time from the start of one of the
+	// Average readings to the start of the next (single readings of a
+	// meter of Singles, spaced to null the ripple); 0: back to back.
+	SpacingS float64
 }
 
 // TimeS returns the time one value costs on meter m.
@@ -265,6 +277,9 @@ func (r Reading) TimeS(m Meter) float64 {
 	n := r.Average
 	if n < 1 {
 		n = 1
+	}
+	if r.SpacingS > 0 && n > 1 {
+		return float64(n-1)*r.SpacingS + r.ApertureS + m.OverheadS
 	}
 	return float64(n) * (r.ApertureS + m.OverheadS)
 }
@@ -325,12 +340,11 @@ func ChooseAperture(freqHz, tauS, targetRel float64, m Meter) (Reading, error) {
 	for _, t := range cands {
 		p := t + m.OverheadS
 		for n := 2; n <= 1000; n++ {
-			res := amp * burstAtten(freqHz, t, p, n)
-			if res < best.ResidualRel {
-				best = Reading{ApertureS: t, Average: n, ResidualRel: res}
+			r, ok := burstReading(freqHz, t, p, n, amp, targetRel, m.Singles)
+			if r.ResidualRel < best.ResidualRel {
+				best = r
 			}
-			if res <= targetRel {
-				r := Reading{ApertureS: t, Average: n, ResidualRel: res}
+			if ok {
 				if found == nil || r.TimeS(m) < found.TimeS(m) {
 					found = &r
 				}
@@ -342,6 +356,27 @@ func ChooseAperture(freqHz, tauS, targetRel float64, m Meter) (Reading, error) {
 		return *found, nil
 	}
 	return best, ErrNoAperture
+}
+
+// burstReading returns the mean of n readings of aperture tS at the
+// ripple amplitude amp: back to back, p apart, and, when spaced (a meter
+// of single readings), also the shortest spacing not under p that puts
+// the n readings on whole fractions of the ripple period, a null of the
+// comb (sin(nπ·2f·s) = 0, sin(π·2f·s) ≠ 0), keeping the better of the
+// two. ok reports that it meets targetRel.
+func burstReading(freqHz, tS, p float64, n int, amp, targetRel float64, spaced bool) (r Reading, ok bool) {
+	r = Reading{ApertureS: tS, Average: n, ResidualRel: amp * burstAtten(freqHz, tS, p, n)}
+	if spaced && r.ResidualRel > targetRel {
+		k := math.Ceil(p*2*freqHz*float64(n) - 1e-9)
+		if int(k)%n == 0 {
+			k++
+		}
+		s := k / (2 * freqHz * float64(n))
+		if res := amp * burstAtten(freqHz, tS, s, n); res < r.ResidualRel {
+			r = Reading{ApertureS: tS, Average: n, ResidualRel: res, SpacingS: s}
+		}
+	}
+	return r, r.ResidualRel <= targetRel
 }
 
 // burstAtten is the attenuation of a sinusoid at 2f by the mean of n

@@ -25,6 +25,11 @@ type Timing struct {
 	SlopeDBPerDecade float64
 	// LevelGain is the DUT gain assumed for choosing the range (1 if 0).
 	LevelGain float64
+	// ACTauS, when set (an AC-reading DMM, no converter), is the meter's
+	// own settling time constant at a frequency, which paces the points
+	// instead of a converter's; a meter stating none (0) is read once per
+	// reading, taken as settled.
+	ACTauS func(freqHz float64) float64
 }
 
 var _ plan.Timing = (*Timing)(nil)
@@ -60,6 +65,9 @@ func (t *Timing) tau(vrms float64) float64 {
 // aperture ChooseAperture picks.
 func (t *Timing) PointSeconds(prevHz, hz, prevVrms, vrms float64) float64 {
 	tau := t.tau(vrms)
+	if t.ACTauS != nil {
+		tau = t.ACTauS(hz)
+	}
 	var dwell float64
 	if prevHz <= 0 || prevVrms <= 0 {
 		dwell = tau * math.Log(1/(2*t.Tol-t.Tol*t.Tol))
@@ -71,6 +79,9 @@ func (t *Timing) PointSeconds(prevHz, hz, prevVrms, vrms float64) float64 {
 		dwell = DwellS(tau, 1, ratio, t.Tol)
 	}
 	rd, _ := ChooseAperture(hz, tau, 0.25*t.Tol, t.Meter)
+	if t.ACTauS != nil && tau <= 0 && t.Meter.Fixed {
+		rd = Reading{ApertureS: t.Meter.Shortest(), Average: 1}
+	}
 	n := t.Readings
 	if n < 2 {
 		n = 2
