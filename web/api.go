@@ -312,11 +312,7 @@ func (s *Server) asset(w http.ResponseWriter, r *http.Request, name string) {
 func (s *Server) bench(w http.ResponseWriter, r *http.Request) {
 	info := s.be.Info()
 	info.Running = s.queue.RunningID()
-	for _, in := range s.queue.List() {
-		if in.State == event.Queued {
-			info.Queued++
-		}
-	}
+	_, info.Queued = s.queue.Page(func(in *queue.Info) bool { return in.State == event.Queued }, 0, 0)
 	writeJSON(w, http.StatusOK, info)
 }
 
