@@ -209,6 +209,9 @@ func (s *Server) route(w http.ResponseWriter, r *http.Request) {
 	case strings.HasPrefix(p, "/api/runs/"):
 		s.runRoute(w, r, strings.TrimPrefix(p, "/api/runs/"))
 		return
+	case strings.HasPrefix(p, "/api/batches/"):
+		s.batchRoute(w, r, strings.TrimPrefix(p, "/api/batches/"))
+		return
 	}
 	guard.WriteError(w, http.StatusNotFound, "path", fmt.Sprintf("no such resource %q", clip(r.URL.Path)))
 }
