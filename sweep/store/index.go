@@ -215,6 +215,16 @@ func (x *Index) rescan(full bool) ([]Summary, error) {
 			}
 			id := d.Name()
 			seen[id] = true
+			if !full {
+				// A run known and final is checked in turn, not each
+				// time a run is added to the store.
+				x.mu.Lock()
+				e := x.runs[id]
+				x.mu.Unlock()
+				if e != nil && e.MetaState.Final() && !e.Racy {
+					continue
+				}
+			}
 			fi, err := d.Info()
 			if err != nil {
 				continue // gone meanwhile
