@@ -3,8 +3,11 @@ package web
 import (
 	"fmt"
 	"testing"
+	"time"
 
 	"rolloff/sweep/event"
+	"rolloff/sweep/point"
+	"rolloff/sweep/store"
 	"rolloff/sweep/store/storetest"
 )
 
@@ -101,5 +104,64 @@ func TestRunListPaged(t *testing.T) {
 	last := (48*60 - 6*60 + 7 - 1) / 7
 	if p = get("?from=2026-01-06&to=2026-01-06&limit=1000"); p.Total != last-first {
 		t.Errorf("runs of 2026-01-06: %d, want %d", p.Total, last-first)
+	}
+}
+
+// TestRunOfAnotherProcess: a run written into the daemon's store by
+// another process (here another store handle, whose lock the daemon
+// cannot take) is found, followed while it is written and listed done
+// with its points, without the daemon reading the store whole.
+func TestRunOfAnotherProcess(t *testing.T) {
+	dir := t.TempDir()
+	if _, err := storetest.Generate(dir, storetest.Opts{Runs: 300}); err != nil {
+		t.Fatal(err)
+	}
+	d := startDemo(t, demoOpts{dir: dir})
+	other, err := store.Open(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := other.Create(store.CreateOpts{PlanFile: "cli.toml", PlanData: []byte("name = \"cli run\"\nunit = \"LD-0900\"\nbatch = \"cli\"\n[frequencies]\nstart_hz = 100\nstop_hz = 1000\npoints_per_decade = 1\n[level]\nvrms = 0.1\n")})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	if err := r.SetState(event.Reading, ""); err != nil {
+		t.Fatal(err)
+	}
+	find := func(st event.State, points int) {
+		t.Helper()
+		deadline := time.Now().Add(20 * time.Second)
+		for {
+			in, err := d.srv.Queue().Get(r.ID())
+			if err == nil && in.State == st && in.Points == points {
+				if st == event.Reading && !in.External {
+					t.Errorf("a run of another process is not marked external")
+				}
+				return
+			}
+			if time.Now().After(deadline) {
+				t.Fatalf("run of another process: %+v (%v), want %s with %d points", in, err, st, points)
+			}
+			time.Sleep(50 * time.Millisecond)
+		}
+	}
+	find(event.Reading, 0)
+	for i, hz := range []float64{100, 1000} {
+		if err := r.AppendPoint(point.Point{Seq: i, Index: i, FreqHz: hz, GainDB: 1}); err != nil {
+			t.Fatal(err)
+		}
+		if err := r.AppendEvent(event.Event{Type: event.TypePoint, Point: &point.Point{Seq: i, Index: i, FreqHz: hz}}); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := r.SetState(event.Done, "2 points"); err != nil {
+		t.Fatal(err)
+	}
+	find(event.Done, 2)
+	res, data := d.do("GET", "/api/runs?unit=LD-0900", nil)
+	want(t, "list", res, data, 200, "")
+	if p := decode[listPage](t, data); p.Total != 1 || p.Runs[0].State != event.Done {
+		t.Errorf("listed %+v", p)
 	}
 }
