@@ -13,7 +13,7 @@ import (
 // indexSaveEvery is how often, at most, the daemon writes the store's
 // run index while runs change; it is written on shutdown too, and a run
 // changed after the last write is found again from its directory.
-const indexSaveEvery = 30 * time.Second
+const indexSaveEvery = 5 * time.Minute
 
 // openIndex opens the store's run index; without one (it cannot be
 // read or made) the store is listed whole, as before.
