@@ -24,6 +24,13 @@ func (g *bridge) openIndex() {
 		return
 	}
 	g.idx, g.idxSaved = x, time.Now()
+	// What the opening repaired is written meanwhile, so that the next
+	// start finds it.
+	go func() {
+		if err := x.Save(); err != nil {
+			g.log.Warn().Err(err).Msg("run index not saved")
+		}
+	}()
 }
 
 var _ queue.ChangeLister = (*bridge)(nil)

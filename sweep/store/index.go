@@ -1,7 +1,6 @@
 package store
 
 import (
-	"bufio"
 	"bytes"
 	"encoding/json"
 	"errors"
@@ -10,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"runtime"
 	"sort"
 	"sync"
 	"time"
@@ -81,15 +81,12 @@ type indexHeader struct {
 }
 
 // OpenIndex loads the store's index and brings it up to date with the
-// run directories.
+// run directories; call Save to write what it repaired.
 func (s *Store) OpenIndex() (*Index, error) {
 	x := &Index{s: s, runs: map[string]*indexEntry{}}
 	x.load()
 	if _, err := x.rescan(true); err != nil {
 		return nil, err
-	}
-	if err := x.Save(); err != nil {
-		s.log.Warn().Err(err).Msg("run index not saved")
 	}
 	return x, nil
 }
@@ -104,22 +101,39 @@ func (x *Index) load() {
 	if err != nil {
 		return
 	}
-	sc := bufio.NewScanner(bytes.NewReader(data))
-	sc.Buffer(nil, 1<<20)
-	if !sc.Scan() {
+	nl := bytes.IndexByte(data, '\n')
+	if nl < 0 {
 		return
 	}
 	var h indexHeader
-	if json.Unmarshal(sc.Bytes(), &h) != nil || h.Format != IndexFormat {
+	if json.Unmarshal(data[:nl], &h) != nil || h.Format != IndexFormat {
 		x.s.log.Warn().Str("file", x.path()).Msg("run index of another format; building it again")
 		return
 	}
-	for sc.Scan() {
-		e := new(indexEntry)
-		if json.Unmarshal(sc.Bytes(), e) != nil || ValidID(e.ID) != nil {
-			continue
+	// The lines are decoded in parallel: the index of a year's store is
+	// tens of megabytes.
+	lines := bytes.Split(data[nl+1:], []byte{'\n'})
+	workers := max(1, min(runtime.GOMAXPROCS(0), len(lines)/1000))
+	parts := make([][]*indexEntry, workers)
+	var wg sync.WaitGroup
+	for w := range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := w; i < len(lines); i += workers {
+				e := new(indexEntry)
+				if len(lines[i]) == 0 || json.Unmarshal(lines[i], e) != nil || ValidID(e.ID) != nil {
+					continue
+				}
+				parts[w] = append(parts[w], e)
+			}
+		}()
+	}
+	wg.Wait()
+	for _, part := range parts {
+		for _, e := range part {
+			x.runs[e.ID] = e
 		}
-		x.runs[e.ID] = e
 	}
 }
 
