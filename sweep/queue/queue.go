@@ -154,6 +154,7 @@ type Queue struct {
 	mu      sync.Mutex
 	entries map[string]*entry
 	order   []*entry // every entry, newest first (see newer)
+	nExt    int      // entries with info.External set
 	waiting []string // ids, in order
 	current *entry
 	closed  bool
@@ -235,6 +236,9 @@ func newer(a, b *Info) bool {
 // addLocked adds a new entry in its place in the list; q.mu is held.
 func (q *Queue) addLocked(e *entry) {
 	q.entries[e.info.ID] = e
+	if e.info.External {
+		q.nExt++
+	}
 	i := sort.Search(len(q.order), func(i int) bool { return !newer(&q.order[i].info, &e.info) })
 	q.order = append(q.order, nil)
 	copy(q.order[i+1:], q.order[i:])
@@ -254,8 +258,8 @@ func (q *Queue) follow() {
 		}
 		var ext []*entry
 		q.mu.Lock()
-		for _, e := range q.order {
-			if e.info.External {
+		for i := 0; q.nExt > 0 && i < len(q.order); i++ {
+			if e := q.order[i]; e.info.External {
 				ext = append(ext, e)
 			}
 		}
@@ -271,8 +275,9 @@ func (q *Queue) follow() {
 				}
 				q.mu.Lock()
 				applyTo(&e.info, ev)
-				if ev.Type == event.TypeState && ev.State.Ended() {
+				if ev.Type == event.TypeState && ev.State.Ended() && e.info.External {
 					e.info.External = false
+					q.nExt--
 				}
 				q.mu.Unlock()
 				q.emit(e.info.ID, ev)
@@ -322,6 +327,7 @@ func (q *Queue) follow() {
 				was := e.info.External
 				if was {
 					e.info.External = false
+					q.nExt--
 					e.info.State, e.info.Prompt = event.Interrupted, nil
 					e.info.Message = "its owner stopped; resume to continue"
 				}
@@ -365,6 +371,7 @@ func (q *Queue) restored(e *entry, s Stored) bool {
 	if !s.State.Ended() {
 		// Being written by another owner: followed from its last event.
 		e.info.External = true
+		q.nExt++
 		if evs, err := q.opts.Backend.Events(q.ctx, s.ID, 0); err == nil {
 			e.seen = len(evs)
 		}
@@ -410,6 +417,9 @@ func (q *Queue) Submit(ctx context.Context, p *plan.Plan, src Source) (string, e
 				q.order = append(q.order[:i], q.order[i+1:]...)
 				break
 			}
+		}
+		if old.info.External {
+			q.nExt--
 		}
 	}
 	q.addLocked(e)

@@ -58,6 +58,7 @@ type Index struct {
 	storeMtime int64 // the store directory's, at the last listing
 	storeRacy  bool
 	final      []string // ids in a final state, checked in turn
+	active     []string // ids not final, or read too recently: checked each time
 	next       int
 	dirty      bool
 }
@@ -202,10 +203,8 @@ func (x *Index) rescan(full bool) ([]Summary, error) {
 	check := map[string]int64{} // id → directory mtime, or -1: stat it
 	var gone []string
 	if !listDir {
-		for id, e := range x.runs {
-			if !e.MetaState.Final() || e.Racy {
-				check[id] = -1
-			}
+		for _, id := range x.active {
+			check[id] = -1
 		}
 		for n := 0; n < IndexCheckPerRefresh && len(x.final) > 0; n++ {
 			if x.next >= len(x.final) {
@@ -256,6 +255,7 @@ func (x *Index) rescan(full bool) ([]Summary, error) {
 	}
 
 	var changed []Summary
+	reread := false // an entry moved between final and active
 	for id, mt := range check {
 		if mt < 0 {
 			fi, err := os.Stat(filepath.Join(x.s.dir, id))
@@ -275,6 +275,9 @@ func (x *Index) rescan(full bool) ([]Summary, error) {
 		}
 		sum, metaState := x.s.readSummary(id)
 		e := &indexEntry{Summary: sum, MetaState: metaState, DirMtime: mt, Racy: racy(mt, now)}
+		// The lists of runs to check change when a run appears, ends or
+		// leaves the window of recent changes.
+		reread = reread || old == nil || old.Racy != e.Racy || old.MetaState.Final() != e.MetaState.Final()
 		if sum.Err != "" && metaState == "" && old == nil {
 			// Not (yet) a run: a directory without meta.json.
 			continue
@@ -296,11 +299,14 @@ func (x *Index) rescan(full bool) ([]Summary, error) {
 			x.dirty = true
 		}
 	}
-	if listDir || len(gone) > 0 || len(changed) > 0 {
-		x.final = x.final[:0]
+	if listDir || len(gone) > 0 || reread {
+		x.final, x.active = x.final[:0], x.active[:0]
 		for id, e := range x.runs {
 			if e.MetaState.Final() {
 				x.final = append(x.final, id)
+			}
+			if !e.MetaState.Final() || e.Racy {
+				x.active = append(x.active, id)
 			}
 		}
 		sort.Strings(x.final)
