@@ -209,6 +209,9 @@ func (s *Server) route(w http.ResponseWriter, r *http.Request) {
 	case strings.HasPrefix(p, "/api/runs/"):
 		s.runRoute(w, r, strings.TrimPrefix(p, "/api/runs/"))
 		return
+	case strings.HasPrefix(p, "/api/batches/"):
+		s.batchRoute(w, r, strings.TrimPrefix(p, "/api/batches/"))
+		return
 	}
 	guard.WriteError(w, http.StatusNotFound, "path", fmt.Sprintf("no such resource %q", clip(r.URL.Path)))
 }
@@ -312,11 +315,7 @@ func (s *Server) asset(w http.ResponseWriter, r *http.Request, name string) {
 func (s *Server) bench(w http.ResponseWriter, r *http.Request) {
 	info := s.be.Info()
 	info.Running = s.queue.RunningID()
-	for _, in := range s.queue.List() {
-		if in.State == event.Queued {
-			info.Queued++
-		}
-	}
+	_, info.Queued = s.queue.Page(func(in *queue.Info) bool { return in.State == event.Queued }, 0, 0)
 	writeJSON(w, http.StatusOK, info)
 }
 

@@ -40,6 +40,7 @@ func New(cfg Config) (*Server, error) {
 		return nil, errors.New("web: no run store")
 	}
 	be := &bridge{b: cfg.Bench, st: cfg.Store, log: cfg.Log, tune: cfg.Sched, owned: map[string]*store.Run{}}
+	be.openIndex()
 	s, err := newServer(cfg, be)
 	if err != nil {
 		return nil, err
@@ -73,6 +74,7 @@ func (g *bridge) closeQueue() {
 	if release != nil {
 		release()
 	}
+	g.saveIndex(true)
 }
 
 // bridge implements backend with the real bench, scheduler and store.
@@ -86,6 +88,10 @@ type bridge struct {
 	owned map[string]*store.Run // runs this daemon holds (locked) while they run
 
 	releaseQueue func() // lets the store's queue lock go
+
+	idx      *store.Index // nil: the store is listed whole
+	idxSaved time.Time    // guarded by mu
+	unseen   map[string]bool
 }
 
 var _ backend = (*bridge)(nil)
@@ -231,27 +237,28 @@ func (r schedRun) Snapshot() queue.Snapshot {
 }
 
 func (g *bridge) List(ctx context.Context) ([]queue.Stored, error) {
-	sums, err := g.st.List()
-	if err != nil {
-		return nil, err
+	var sums []store.Summary
+	if g.idx != nil {
+		sums = g.idx.Runs()
+	} else {
+		var err error
+		if sums, err = g.st.List(); err != nil {
+			return nil, err
+		}
 	}
+	return g.stored(sums), nil
+}
+
+func (g *bridge) stored(sums []store.Summary) []queue.Stored {
 	out := make([]queue.Stored, 0, len(sums))
 	for _, s := range sums {
 		if s.Err != "" {
 			g.log.Warn().Str("run", s.ID).Str("error", s.Err).Msg("run cannot be read; not listed")
 			continue
 		}
-		st := queue.Stored{ID: s.ID, Name: s.Name, State: s.State, Created: s.Created, Points: s.Points}
-		st.Plan = &plan.Plan{Name: s.Name, ReferenceHz: s.Plan.ReferenceHz,
-			Frequencies: plan.Frequencies{Spacing: s.Plan.Spacing, StartHz: s.Plan.StartHz, StopHz: s.Plan.StopHz},
-			Level:       plan.Level{Vrms: s.Plan.Vrms}, Ranging: plan.Ranging{Strategy: s.Plan.Strategy},
-			Refine: plan.Refine{Enabled: s.Plan.Refine}}
-		if s.LowHz != nil || s.HighHz != nil {
-			st.Result, _ = json.Marshal(map[string]*float64{"low_hz": s.LowHz, "high_hz": s.HighHz})
-		}
-		out = append(out, st)
+		out = append(out, storedOf(s))
 	}
-	return out, nil
+	return out
 }
 
 func (g *bridge) Events(ctx context.Context, id string, from int) ([]event.Event, error) {

@@ -84,6 +84,15 @@ func TestLineBrowser(t *testing.T) {
 	}
 	// The history overlays the units listed.
 	waitLine(t, ctx, `window.rolloffLine.overlaid === 2 && document.getElementById('overlay').naturalWidth > 0`, 20*time.Second)
+	// The batch view: both units of batch proto-A, their yield, and
+	// their overlay with the mask drawn by the daemon.
+	waitLine(t, ctx, `window.rolloffLine.batchOverlaid === 2 && document.getElementById('batch-overlay').naturalWidth > 0`, 20*time.Second)
+	if y := jsString(ctx, `document.getElementById('batch-yield').innerText`); !strings.Contains(y, "yield 50.0 %") || !strings.Contains(y, "2 units") {
+		t.Errorf("batch yield %q", y)
+	}
+	if p := jsString(ctx, `document.getElementById('page-info').innerText`); p != "runs 1–2 of 2" {
+		t.Errorf("page info %q", p)
+	}
 	// The history filters by unit.
 	if err := chromedp.Do(ctx, chromedp.SetValue(chromedp.ID("f-unit"), "LD-0043"), chromedp.Click(chromedp.CSS(`#filter-form button`))); err != nil {
 		t.Fatal(err)

@@ -36,7 +36,8 @@ func TestRunFilter(t *testing.T) {
 			t.Errorf("%q: got runs %q, want %q", c.query, got, c.want)
 		}
 	}
-	for _, bad := range []string{"state=done", "unit=a&unit=b", "batch=" + string(make([]byte, 65))} {
+	for _, bad := range []string{"colour=red", "state=sleeping", "unit=a&unit=b", "batch=" + string(make([]byte, 65)),
+		"limit=0", "limit=1001", "offset=-1", "from=yesterday", "from=2026-12-02&to=2026-12-01"} {
 		q, _ := url.ParseQuery(bad)
 		if _, err := parseRunFilter(q); err == nil {
 			t.Errorf("%q accepted", bad)
@@ -59,11 +60,42 @@ func TestRunListFilter(t *testing.T) {
 			t.Errorf("%q: %d runs, want %d", q, len(runs), n)
 		}
 	}
-	res, data = d.do("GET", "/api/runs?state=done", nil)
-	want(t, "unknown filter", res, data, 400, "state")
+	res, data = d.do("GET", "/api/runs?state=sleeping", nil)
+	want(t, "unknown state", res, data, 400, "state")
+	res, data = d.do("GET", "/api/runs?colour=red", nil)
+	want(t, "unknown filter", res, data, 400, "colour")
 	// The daemon serves the run's report.
 	res, data = d.do("GET", "/api/runs/"+id+"/files/report.pdf", nil)
 	if res.StatusCode != 200 || len(data) < 5 || string(data[:5]) != "%PDF-" {
 		t.Errorf("report.pdf: %d %.20q", res.StatusCode, data)
+	}
+}
+
+func TestRunFilterStateTime(t *testing.T) {
+	day := time.Date(2026, 12, 1, 0, 0, 0, 0, time.UTC)
+	list := []queue.Info{
+		{ID: "a", State: event.Done, Created: day.Add(30 * time.Hour)},
+		{ID: "b", State: event.Failed, Created: day.Add(23 * time.Hour)},
+		{ID: "c", State: event.Done, Created: day},
+		{ID: "d", State: event.Interrupted, Created: day.Add(-time.Second)},
+	}
+	for _, c := range []struct{ query, want string }{
+		{"state=done", "ac"}, {"state=done,failed", "abc"}, {"state=interrupted", "d"},
+		{"from=2026-12-01", "abc"}, {"to=2026-12-01", "bcd"}, {"from=2026-12-01&to=2026-12-01", "bc"},
+		{"from=2026-12-01T23:00:00Z", "ab"}, {"to=2026-12-01T23:00:00Z", "cd"},
+		{"from=2026-12-01&state=done", "ac"},
+	} {
+		q, _ := url.ParseQuery(c.query)
+		f, err := parseRunFilter(q)
+		if err != nil {
+			t.Fatalf("%q: %v", c.query, err)
+		}
+		got := ""
+		for _, in := range f.filter(list) {
+			got += in.ID
+		}
+		if got != c.want {
+			t.Errorf("%q: got runs %q, want %q", c.query, got, c.want)
+		}
 	}
 }

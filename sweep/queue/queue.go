@@ -95,6 +95,14 @@ type Backend interface {
 	SetState(ctx context.Context, id string, s event.State, msg string) error
 }
 
+// ChangeLister is an optional capability of a Backend: the stored runs
+// whose summary changed since the last call (or since List, for the
+// first), found without reading the whole store. With it the queue lists
+// the store whole only once, in New.
+type ChangeLister interface {
+	ListChanged(ctx context.Context) ([]Stored, error)
+}
+
 // Info is what the API shows of a run.
 type Info struct {
 	ID       string          `json:"id"`
@@ -145,6 +153,8 @@ type Queue struct {
 
 	mu      sync.Mutex
 	entries map[string]*entry
+	order   []*entry // every entry, newest first (see newer)
+	nExt    int      // entries with info.External set
 	waiting []string // ids, in order
 	current *entry
 	closed  bool
@@ -209,9 +219,30 @@ func (q *Queue) adopt(ctx context.Context, s Stored) {
 	}
 	q.mu.Lock()
 	if q.entries[s.ID] == nil {
-		q.entries[s.ID] = e
+		q.addLocked(e)
 	}
 	q.mu.Unlock()
+}
+
+// newer reports whether a is listed before b: created later, or at the
+// same time with a greater id.
+func newer(a, b *Info) bool {
+	if !a.Created.Equal(b.Created) {
+		return a.Created.After(b.Created)
+	}
+	return a.ID > b.ID
+}
+
+// addLocked adds a new entry in its place in the list; q.mu is held.
+func (q *Queue) addLocked(e *entry) {
+	q.entries[e.info.ID] = e
+	if e.info.External {
+		q.nExt++
+	}
+	i := sort.Search(len(q.order), func(i int) bool { return !newer(&q.order[i].info, &e.info) })
+	q.order = append(q.order, nil)
+	copy(q.order[i+1:], q.order[i:])
+	q.order[i] = e
 }
 
 // follow reads the runs of other owners from the store and lists runs
@@ -227,8 +258,8 @@ func (q *Queue) follow() {
 		}
 		var ext []*entry
 		q.mu.Lock()
-		for _, e := range q.entries {
-			if e.info.External {
+		for i := 0; q.nExt > 0 && i < len(q.order); i++ {
+			if e := q.order[i]; e.info.External {
 				ext = append(ext, e)
 			}
 		}
@@ -244,8 +275,9 @@ func (q *Queue) follow() {
 				}
 				q.mu.Lock()
 				applyTo(&e.info, ev)
-				if ev.Type == event.TypeState && ev.State.Ended() {
+				if ev.Type == event.TypeState && ev.State.Ended() && e.info.External {
 					e.info.External = false
+					q.nExt--
 				}
 				q.mu.Unlock()
 				q.emit(e.info.ID, ev)
@@ -258,14 +290,21 @@ func (q *Queue) follow() {
 		if n%q.opts.RescanEvery != 0 || busy {
 			continue
 		}
-		stored, err := q.opts.Backend.List(q.ctx)
+		var stored []Stored
+		var err error
+		cl, changes := q.opts.Backend.(ChangeLister)
+		if changes {
+			stored, err = cl.ListChanged(q.ctx)
+		} else {
+			stored, err = q.opts.Backend.List(q.ctx)
+		}
 		if err != nil {
 			continue
 		}
 		q.mu.Lock()
 		busy = q.creating > 0
 		q.mu.Unlock()
-		if busy {
+		if busy && !changes {
 			continue
 		}
 		for _, s := range stored {
@@ -274,13 +313,21 @@ func (q *Queue) follow() {
 			q.mu.Unlock()
 			switch {
 			case e == nil:
+				if busy {
+					// Perhaps a Submit's run between Create and its
+					// entry: looked at again at the next rescan.
+					q.unseen(cl, s)
+					continue
+				}
 				q.adopt(q.ctx, s)
+			case q.restored(e, s):
 			case s.State == event.Interrupted:
 				// Its owner went away without a word.
 				q.mu.Lock()
 				was := e.info.External
 				if was {
 					e.info.External = false
+					q.nExt--
 					e.info.State, e.info.Prompt = event.Interrupted, nil
 					e.info.Message = "its owner stopped; resume to continue"
 				}
@@ -291,6 +338,47 @@ func (q *Queue) follow() {
 			}
 		}
 	}
+}
+
+// unseen hands a changed run back to a change lister that can report it
+// again (a Backend whose ListChanged only reports each change once would
+// otherwise lose it).
+func (q *Queue) unseen(cl ChangeLister, s Stored) {
+	if u, ok := cl.(interface{ Unseen(id string) }); ok {
+		u.Unseen(s.ID)
+	}
+}
+
+// restored updates an interrupted run, neither queued nor live here,
+// that the store shows taken up by another process (resumed from the
+// command line, or closed there); it reports whether it did. A run in
+// any other state here is known better here than from a summary the
+// store may have given before the run's last change.
+func (q *Queue) restored(e *entry, s Stored) bool {
+	q.mu.Lock()
+	if e.run != nil || e.info.External || e.info.State != event.Interrupted || s.State == event.Interrupted {
+		q.mu.Unlock()
+		return false
+	}
+	from := e.info.State
+	e.info.Name, e.info.Points, e.info.State, e.info.Message = s.Name, s.Points, s.State, ""
+	if s.Plan != nil {
+		e.info.Plan = s.Plan
+	}
+	if s.Result != nil {
+		e.info.Result = s.Result
+	}
+	if !s.State.Ended() {
+		// Being written by another owner: followed from its last event.
+		e.info.External = true
+		q.nExt++
+		if evs, err := q.opts.Backend.Events(q.ctx, s.ID, 0); err == nil {
+			e.seen = len(evs)
+		}
+	}
+	q.mu.Unlock()
+	q.emit(s.ID, event.Event{Time: time.Now().UTC(), Type: event.TypeState, Run: s.ID, From: from, State: s.State})
+	return true
 }
 
 // Submit records a new run of p, given as src, and queues it. It returns
@@ -322,7 +410,19 @@ func (q *Queue) Submit(ctx context.Context, p *plan.Plan, src Source) (string, e
 		q.mu.Unlock()
 		return "", ErrClosed
 	}
-	q.entries[id] = e
+	if old := q.entries[id]; old != nil {
+		// Found in the store by a rescan meanwhile: this entry replaces it.
+		for i, o := range q.order {
+			if o == old {
+				q.order = append(q.order[:i], q.order[i+1:]...)
+				break
+			}
+		}
+		if old.info.External {
+			q.nExt--
+		}
+	}
+	q.addLocked(e)
 	q.waiting = append(q.waiting, id)
 	q.mu.Unlock()
 	q.emit(id, event.Event{Time: time.Now().UTC(), Type: event.TypeState, Run: id, State: event.Queued})
@@ -343,19 +443,32 @@ func (q *Queue) emit(id string, ev event.Event) {
 
 // List returns every run, newest first.
 func (q *Queue) List() []Info {
+	out, _ := q.Page(nil, 0, -1)
+	return out
+}
+
+// Page returns the runs that keep accepts (all when keep is nil), newest
+// first, skipping offset of them and returning at most limit (all when
+// limit < 0), with the number of runs accepted. keep sees each run's
+// Info as the queue holds it, and must not keep it or block.
+func (q *Queue) Page(keep func(*Info) bool, offset, limit int) (page []Info, total int) {
 	q.mu.Lock()
 	defer q.mu.Unlock()
-	out := make([]Info, 0, len(q.entries))
-	for _, e := range q.entries {
-		out = append(out, q.infoLocked(e))
+	if limit < 0 {
+		limit = len(q.order)
 	}
-	sort.Slice(out, func(i, j int) bool {
-		if !out[i].Created.Equal(out[j].Created) {
-			return out[i].Created.After(out[j].Created)
+	offset = max(offset, 0)
+	page = make([]Info, 0, min(limit, len(q.order)))
+	for _, e := range q.order {
+		if keep != nil && !keep(&e.info) {
+			continue
 		}
-		return out[i].ID > out[j].ID
-	})
-	return out
+		if total >= offset && len(page) < limit {
+			page = append(page, q.infoLocked(e))
+		}
+		total++
+	}
+	return page, total
 }
 
 func (q *Queue) infoLocked(e *entry) Info {

@@ -22,6 +22,19 @@
 //	                       .csv, .png, .svg, .pdf, .txt) may be added the
 //	                       same way
 //
+// meta.json also records how many points were stored when its owner last
+// wrote it and, once the run is done, its result's figures (Figures), so
+// that a list of runs reads neither points.jsonl nor result.json.
+//
+// The store's index (Index, in .index/runs.jsonl) keeps every run's
+// summary so that a daemon on a store of tens of thousands of runs lists
+// them without reading them: it reads a run again only when the run's
+// directory changed (meta.json and result files are replaced by rename,
+// which moves the directory's modification time), or when the run is not
+// in a final state. The index file is only a cache, written with the
+// atomic writer; one missing, stale or damaged after a crash is repaired
+// from the run directories when it is opened.
+//
 // The constants File* name these files; the other packages (export, the
 // web API, the CLI) use them rather than spelling the names.
 //

@@ -175,6 +175,8 @@ func (r *Run) recover(m *Meta, write bool) (Recovery, error) {
 		rec.Interrupted, rec.PrevState = true, st
 		msg := "found " + string(st) + " with no live owner"
 		now := time.Now().UTC()
+		n := len(pts)
+		m.PointsStored = &n
 		if write {
 			if err := r.writeInterrupted(*m, now, msg); err != nil {
 				r.log.Warn().Err(err).Msg("could not record the interruption")
@@ -623,6 +625,13 @@ func (r *Run) SetState(state event.State, message string) error {
 		return err
 	}
 	m.State, m.Message, m.Updated = state, message, now
+	r.mu.RLock()
+	n := len(r.pts)
+	r.mu.RUnlock()
+	m.PointsStored = &n
+	if state == event.Done {
+		r.recordResult(&m) // the finish step wrote it before the done state
+	}
 	if err := r.writeMeta(m); err != nil {
 		return err
 	}

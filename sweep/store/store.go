@@ -177,6 +177,12 @@ type Meta struct {
 	PlanSource string                     `json:"plan_source,omitempty"`
 	Identities map[string]driver.Identity `json:"identities,omitempty"`
 	Plan       PlanSummary                `json:"plan"`
+	// PointsStored is how many points were stored when the owner last
+	// wrote meta.json (absent from a meta.json of an earlier version);
+	// Figures are the result's figures, recorded when the run is done.
+	// A run list reads these rather than points.jsonl and result.json.
+	PointsStored *int     `json:"points_stored,omitempty"`
+	Figures      *Figures `json:"figures,omitempty"`
 }
 
 // PlanSummary is what a run list shows of the plan.
@@ -284,7 +290,8 @@ func (s *Store) Create(o CreateOpts) (*Run, error) {
 		now = time.Now()
 	}
 	now = now.UTC()
-	meta := Meta{
+	none := 0
+	meta := Meta{PointsStored: &none,
 		Format: MetaFormat, Name: name, Created: now, Updated: now, State: state,
 		PlanFile: planFile, PlanSource: o.PlanFile, Identities: o.Identities, Plan: sum,
 	}
@@ -488,6 +495,9 @@ type Summary struct {
 	// one that gives them.
 	LowHz  *float64 `json:"low_hz,omitempty"`
 	HighHz *float64 `json:"high_hz,omitempty"`
+	// Figures are the result's figures (corners with their
+	// uncertainties, peaking, the mask verdict), when there is a result.
+	Figures *Figures `json:"figures,omitempty"`
 	// Err says why the run could not be read; the other fields are then
 	// partly empty.
 	Err string `json:"error,omitempty"`
@@ -519,27 +529,63 @@ func (s *Store) List() ([]Summary, error) {
 }
 
 func (s *Store) summary(id string) Summary {
+	sum, _ := s.readSummary(id)
+	return sum
+}
+
+// readSummary reads run id's summary from its meta.json; points.jsonl is
+// read only when meta.json does not record the number of points (a run
+// not ended, or a meta.json of an earlier version), result.json only when
+// meta.json has no figures for a done run or the result was written after
+// it. It returns the state meta.json records (the summary's may be
+// interrupted instead).
+func (s *Store) readSummary(id string) (Summary, event.State) {
+	if testHookSummaryRead != nil {
+		testHookSummaryRead(id)
+	}
 	sum := Summary{ID: id}
 	r := &Run{store: s, id: id, dir: filepath.Join(s.dir, id), log: s.log}
 	m, err := r.loadMeta()
 	if err != nil {
 		sum.Err = err.Error()
-		return sum
+		return sum, ""
 	}
 	sum.Name, sum.Created, sum.Updated, sum.State, sum.Message = m.Name, m.Created, m.Updated, m.State, m.Message
 	sum.Plan, sum.PlanPoints = m.Plan, m.Plan.Points
 	if !m.State.Ended() && !r.liveOwner() && !s.waiting(m.State) {
 		sum.State = event.Interrupted
 	}
-	if data, err := readRegular(filepath.Join(r.dir, FilePoints)); err == nil {
+	if m.PointsStored != nil && m.State.Ended() {
+		sum.Points = *m.PointsStored
+	} else if data, err := readRegular(filepath.Join(r.dir, FilePoints)); err == nil {
 		sum.Points = countLines(data)
 	} else if !errors.Is(err, fs.ErrNotExist) {
 		sum.Err = err.Error()
 	}
-	if data, err := readRegular(filepath.Join(r.dir, FileResult)); err == nil {
-		sum.LowHz, sum.HighHz = corners(data)
+	sum.Figures = m.Figures
+	if m.Figures == nil || resultNewer(r.dir) {
+		if data, err := readRegular(filepath.Join(r.dir, FileResult)); err == nil {
+			sum.Figures = FiguresOf(data)
+		}
 	}
-	return sum
+	if sum.Figures != nil {
+		sum.LowHz, sum.HighHz = sum.Figures.LowHz, sum.Figures.HighHz
+	}
+	return sum, m.State
+}
+
+// testHookSummaryRead, when set, is called by each readSummary.
+var testHookSummaryRead func(id string)
+
+// resultNewer reports whether the run's result.json was written after its
+// meta.json (an analysis run again after the run ended).
+func resultNewer(dir string) bool {
+	rs, err := os.Lstat(filepath.Join(dir, FileResult))
+	if err != nil {
+		return false
+	}
+	ms, err := os.Lstat(filepath.Join(dir, FileMeta))
+	return err == nil && rs.ModTime().After(ms.ModTime())
 }
 
 // countLines counts the complete non-blank lines of a JSON-lines file.

@@ -415,13 +415,68 @@
   $('btn-prompt-abort').addEventListener('click', function () { hidePrompt(); control('abort'); });
 
   // --- run history
-  async function refreshRuns() {
-    try {
-      const r = await api('GET', '/api/runs');
-      state.runs = r.runs || [];
-      renderRuns();
-    } catch (e) { /* keep the last list */ }
+  // The list is paged and filtered by the daemon: RUN_PAGE runs at a time,
+  // newest first.
+  const RUN_PAGE = 50;
+  const runsView = { offset: 0, next: null, batch: '' };
+  function runsQuery() {
+    const q = new URLSearchParams();
+    const set = function (k, v) { if (v) q.set(k, v); };
+    set('batch', $('rf-batch').value.trim());
+    set('unit', $('rf-unit').value.trim());
+    set('state', $('rf-state').value);
+    set('from', $('rf-from').value);
+    set('to', $('rf-to').value);
+    q.set('limit', String(RUN_PAGE));
+    if (runsView.offset) q.set('offset', String(runsView.offset));
+    return q.toString();
   }
+  async function refreshRuns(asked) {
+    try {
+      const r = await api('GET', '/api/runs?' + runsQuery());
+      state.runs = r.runs || [];
+      state.runsTotal = r.total;
+      runsView.next = typeof r.next_offset === 'number' ? r.next_offset : null;
+      $('runs-page').textContent = r.total
+        ? 'runs ' + (r.offset + 1) + '–' + (r.offset + state.runs.length) + ' of ' + r.total : 'no runs';
+      $('runs-newer').disabled = r.offset === 0;
+      $('runs-older').disabled = runsView.next === null;
+      renderRuns();
+    } catch (e) {
+      if (asked === true) notice('run list: ' + e.message, 'bad'); // else keep the last list
+    }
+    refreshBatch();
+  }
+
+  // The batch filtered on: its yield and the overlay of its finished
+  // units with the mask, drawn by the daemon.
+  async function refreshBatch() {
+    const b = $('rf-batch').value.trim();
+    const box = $('batch-box');
+    if (!b) { box.hidden = true; runsView.batch = ''; return; }
+    let v;
+    try { v = await api('GET', '/api/batches/' + encodeURIComponent(b)); }
+    catch (e) { box.hidden = true; return; }
+    box.hidden = false;
+    $('batch-summary').textContent = 'batch ' + b + ': ' + v.units + ' units in ' + v.runs + ' runs; ' +
+      (typeof v.yield === 'number'
+        ? 'yield ' + (100 * v.yield).toFixed(1) + ' % (' + v.units_passed + ' of ' + (v.units_passed + v.units_failed) + ' units pass the mask)'
+        : 'none checked against a mask');
+    const img = $('batch-img');
+    // The overlay is drawn again only when the batch has new finished runs.
+    const key = b + '/' + v.done;
+    if (!v.done || runsView.batch === key) { img.hidden = !v.done; return; }
+    try {
+      const blob = await fetchBlob('/api/batches/' + encodeURIComponent(b) + '/overlay.png');
+      if (img.src) URL.revokeObjectURL(img.src);
+      img.src = URL.createObjectURL(blob);
+      img.hidden = false;
+      runsView.batch = key;
+    } catch (e) { img.hidden = true; }
+  }
+  $('runs-filter').addEventListener('submit', function (ev) { ev.preventDefault(); runsView.offset = 0; refreshRuns(true); });
+  $('runs-newer').addEventListener('click', function () { runsView.offset = Math.max(0, runsView.offset - RUN_PAGE); refreshRuns(true); });
+  $('runs-older').addEventListener('click', function () { if (runsView.next !== null) { runsView.offset = runsView.next; refreshRuns(true); } });
 
   const selected = new Set();
   const EXPORTS = ['response.csv', 'result.json', 'response.png', 'response.svg', 'response.pdf'];
@@ -521,7 +576,7 @@
       $('overlay').hidden = false;
     } catch (e) { notice('overlay: ' + e.message, 'bad'); }
   });
-  $('btn-refresh').addEventListener('click', refreshRuns);
+  $('btn-refresh').addEventListener('click', function () { refreshRuns(true); });
 
   // --- start
   (async function () {

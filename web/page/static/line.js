@@ -149,17 +149,27 @@
     window.open(URL.createObjectURL(await r.blob()), '_blank');
   });
 
+  const PAGE = 50;
+  let offset = 0;
   async function refresh() {
     const q = new URLSearchParams();
     if ($('f-batch').value.trim()) q.set('batch', $('f-batch').value.trim());
     if ($('f-unit').value.trim()) q.set('unit', $('f-unit').value.trim());
-    let runs;
+    q.set('limit', String(PAGE));
+    if (offset) q.set('offset', String(offset));
+    let page, runs;
     try {
-      runs = (await api('GET', '/api/runs' + (q.toString() ? '?' + q.toString() : ''))).runs;
+      page = await api('GET', '/api/runs?' + q.toString());
+      runs = page.runs;
     } catch (e) {
       $('line-error').textContent = e.message;
       return;
     }
+    $('page-info').textContent = page.total
+      ? 'runs ' + (page.offset + 1) + '–' + (page.offset + runs.length) + ' of ' + page.total : 'no runs';
+    $('newer').disabled = page.offset === 0;
+    $('older').disabled = page.next_offset === undefined || page.next_offset === null;
+    state.next = page.next_offset;
     const body = $('history').querySelector('tbody');
     body.textContent = '';
     let checked = 0, passed = 0;
@@ -183,6 +193,42 @@
       : runs.length + ' runs listed, none checked against a mask';
     state.listed = runs.length;
     overlay(runs);
+    batchView();
+  }
+
+  // batchView shows the batch filtered on (or, without a filter, the
+  // batch being measured): its yield over every unit, not only those
+  // listed, and the overlay of its finished units with the mask.
+  let batchURL = null;
+  async function batchView() {
+    const b = $('f-batch').value.trim() || $('batch').value.trim();
+    const box = $('batch-view');
+    if (!b) { box.hidden = true; state.batch = null; return; }
+    let v;
+    try {
+      v = await api('GET', '/api/batches/' + encodeURIComponent(b));
+    } catch (e) {
+      box.hidden = true;
+      state.batch = null;
+      return;
+    }
+    box.hidden = false;
+    $('batch-name').textContent = b;
+    const units = v.units + (v.units === 1 ? ' unit' : ' units') + ', ' + v.runs + (v.runs === 1 ? ' run' : ' runs');
+    $('batch-yield').textContent = typeof v.yield === 'number'
+      ? 'yield ' + (100 * v.yield).toFixed(1) + ' % (' + v.units_passed + ' of ' + (v.units_passed + v.units_failed) +
+        ' units pass, each by its newest run; ' + units + ')'
+      : units + ', none checked against a mask';
+    state.batch = v;
+    const img = $('batch-overlay');
+    if (!v.done) { img.hidden = true; return; }
+    const r = await fetch('/api/batches/' + encodeURIComponent(b) + '/overlay.png', { headers: headers(false), cache: 'no-store' });
+    if (!r.ok) { img.hidden = true; return; }
+    if (batchURL) URL.revokeObjectURL(batchURL);
+    batchURL = URL.createObjectURL(await r.blob());
+    img.src = batchURL;
+    img.hidden = false;
+    state.batchOverlaid = v.done;
   }
 
   // overlay shows the responses of the most recent finished units listed
@@ -201,7 +247,9 @@
     state.overlaid = ids.length;
   }
 
-  $('filter-form').addEventListener('submit', function (ev) { ev.preventDefault(); refresh(); });
+  $('filter-form').addEventListener('submit', function (ev) { ev.preventDefault(); offset = 0; refresh(); });
+  $('newer').addEventListener('click', function () { offset = Math.max(0, offset - PAGE); refresh(); });
+  $('older').addEventListener('click', function () { if (typeof state.next === 'number') { offset = state.next; refresh(); } });
   refresh();
   $('serial').focus();
 })();
