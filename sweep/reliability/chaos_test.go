@@ -37,7 +37,9 @@ func TestChaos(t *testing.T) {
 			}
 			seed = n
 		}
-		g := openRig(t, 100, "", func(c *profile.BenchFile) { c.Voltmeter.DMM.Framing.QueryTimeoutS = 0.4 })
+		// Time scale 25: the sweep lasts long enough (about 6 s) for a fault
+		// to be armed after about every other point even on a loaded machine.
+		g := openRig(t, 25, "", func(c *profile.BenchFile) { c.Voltmeter.DMM.Framing.QueryTimeoutS = 0.4 })
 		p, freqs := loadPlan(t, "plan.toml", chaosPlanTOML, g.b)
 		rng := rand.New(rand.NewPCG(seed, 1))
 		vm, gen := g.sim.Faults(sim.RoleVoltmeter), g.sim.Faults(sim.RoleGenerator)
