@@ -148,25 +148,37 @@ func (b *budgetInputs) perturbed(xc float64, d []float64) (float64, bool) {
 		x = clamp(x, b.x0, b.x1)
 		return b.c.atLog(x) + linearAt(b.xs, d, x) - level
 	}
-	x := xc
-	const h = 1e-6
-	for it := 0; it < 30; it++ {
-		v := g(x)
-		s := (g(x+h) - g(x-h)) / (2 * h)
-		if s == 0 || math.IsNaN(s) {
-			return x, false
-		}
-		step := v / s
-		step = clamp(step, -0.05, 0.05)
-		x -= step
-		if math.Abs(step) < 1e-12 {
-			break
+	// The nearest sign change of g within half a decade, then
+	// bisection: δ is only piecewise linear, so Newton's steps could
+	// stall at its kinks.
+	g0 := g(xc)
+	if g0 == 0 {
+		return xc, true
+	}
+	const step = 0.002
+	for k := 1; k <= 250; k++ {
+		for _, dir := range []float64{1, -1} {
+			xa, xb := xc+dir*float64(k-1)*step, xc+dir*float64(k)*step
+			if xb < b.x0 || xb > b.x1 {
+				continue
+			}
+			ga, gb := g(xa), g(xb)
+			if ga*gb > 0 {
+				continue
+			}
+			for it := 0; it < 60 && math.Abs(xb-xa) > 1e-13; it++ {
+				xm := (xa + xb) / 2
+				gm := g(xm)
+				if (gm > 0) == (ga > 0) {
+					xa, ga = xm, gm
+				} else {
+					xb = xm
+				}
+			}
+			return (xa + xb) / 2, true
 		}
 	}
-	if math.Abs(g(x)) > 1e-6 || math.Abs(x-xc) > 0.5 {
-		return x, false
-	}
-	return x, true
+	return xc, false
 }
 
 // sensitivity returns ∂fc/∂e (Hz per unit of the group's error) at the
