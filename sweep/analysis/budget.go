@@ -361,6 +361,40 @@ func (a *analysis) budget(r *Result, pts []point.Point, c curve, refXs []float64
 			perPoint("settle residual", "bounded by the settling tolerance, independent from point to point", sp.SettleTolRel),
 			perPoint("ripple residual", "bounded by the ripple over the aperture, independent from point to point", sp.RippleRel))
 	}
+	// Errors independent from point to point are averaged by a fitted
+	// model as the readings' scatter is: each goes through the fit's
+	// covariance, unscaled, in proportion to its share of the points'
+	// uncertainty (a linear least-squares fit's parameters move by
+	// (JᵀWJ)⁻¹JᵀW·δ, JCGM 100:2008 §H.3).
+	if m, ok := c.(*Model); ok && a.cov != nil && r.Model != nil {
+		for ci := range b.comps {
+			cm := &b.comps[ci]
+			if cm.name != "settle residual" && cm.name != "ripple residual" {
+				continue
+			}
+			var rho2 float64
+			for _, g := range cm.groups {
+				if u := a.inc[g.idx[0]].UDB; u > 0 {
+					v := g.val[0] * g.u()
+					rho2 += v * v / (u * u)
+				}
+			}
+			if len(cm.groups) == 0 {
+				continue
+			}
+			rho := math.Sqrt(rho2 / float64(len(cm.groups)))
+			for side := 0; side < 2; side++ {
+				if b.corners[side] != nil {
+					u0 := a.cov.cornerU(m, *b.corners[side], refXs) / math.Sqrt(math.Max(1, a.birge(r.Model)))
+					if !math.IsNaN(u0) {
+						cm.direct[side] = u0 * rho
+					}
+				}
+			}
+			cm.groups = nil
+			cm.note += "; averaged by the fit"
+		}
+	}
 	// Type A.
 	ta := component{name: "type A", dist: DistNormal, unit: "dB"}
 	if m, ok := c.(*Model); ok && a.cov != nil && r.Model != nil {
@@ -441,13 +475,19 @@ func (a *analysis) typeAScale(m *ModelResult) float64 {
 		return 1
 	}
 	rho2 /= float64(k)
+	s := a.birge(m)
+	return math.Sqrt(math.Max(rho2, s) / math.Max(1, s))
+}
+
+// birge is the fit's χ²/(n−k) (1 when there are no degrees of freedom
+// left).
+func (a *analysis) birge(m *ModelResult) float64 {
 	n := float64(m.FitPoints)
 	dof := n - float64(len(a.cov.theta)) - 1
-	if dof < 1 {
+	if dof < 1 || !m.NoiseDeclared {
 		return 1
 	}
-	s := m.ReducedChi * m.ReducedChi * n / dof
-	return math.Sqrt(math.Max(rho2, s) / math.Max(1, s))
+	return m.ReducedChi * m.ReducedChi * n / dof
 }
 
 // refXs returns the reference abscissae of an estimation: its reference
