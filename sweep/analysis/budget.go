@@ -315,8 +315,28 @@ func (a *analysis) budget(r *Result, pts []point.Point, c curve, refXs []float64
 		// Without the split nothing says which readings share an error:
 		// each point's figure is taken as its own (the cautious reading:
 		// no cancellation between the reference and a corner).
-		b.comps = append(b.comps, keyed("converter accuracy", "no component split given: each point's figure, independent",
-			func(i int) (int, float64, bool) { return i, pt(i).ConvAccRel, true }, one))
+		// The figure at the corner and at the reference combine in
+		// quadrature (as the points' own, uncorrelated).
+		cm := keyed("converter accuracy", "no component split given: each point's figure, the corner's and the reference's uncorrelated",
+			func(i int) (int, float64, bool) { return i, pt(i).ConvAccRel, true }, one)
+		cm.groups = nil
+		us := make([]float64, n)
+		for i := range us {
+			us[i] = dbPerRel * rect(pt(i).ConvAccRel)
+		}
+		var ur float64
+		for _, x := range refXs {
+			ur += linearAt(a.xs, us, x) / float64(len(refXs))
+		}
+		for side := 0; side < 2; side++ {
+			if b.corners[side] != nil {
+				xc := *b.corners[side]
+				if perLn := math.Abs(c.slopeLog(xc)) / math.Ln10; perLn > 0 {
+					cm.direct[side] = math.Hypot(linearAt(a.xs, us, xc), ur) / perLn
+				}
+			}
+		}
+		b.comps = append(b.comps, cm)
 	}
 	dc := keyed("DC voltmeter gain and offset", "one range for the run: its errors, relative to each DC reading",
 		func(i int) (int, float64, bool) {

@@ -80,10 +80,12 @@ type validationCase struct {
 // responses: the GUM framework's interval y ± U against the Monte Carlo
 // probabilistically symmetric 95 % interval, with the numerical
 // tolerance δ of u(y) stated to two significant digits (§8.2). The
-// outcome is logged; the test asserts that the Monte Carlo interval's
-// half-width is within 15 % of U (the coverage factor 2 against the
-// quantiles of a sum of rectangular and normal inputs) and that both
-// methods centre on the same corner.
+// outcome is logged. Where one rectangular input dominates, k = 2 is
+// not expected to pass (the 95 % quantile of a rectangular distribution
+// is 0.95·a against 2·a/√3, JCGM 101:2008 §9.2): the test asserts the
+// Monte Carlo half-width lies between 0.8 and 1.15 times U — between the
+// single-rectangular and the normal case — and that both methods centre
+// on the same corner.
 func TestMonteCarloValidation(t *testing.T) {
 	spec := &Spec{
 		ConverterRangeGainRel: 0.005, ConverterLinearityFS: 0.0005,
@@ -131,8 +133,8 @@ func TestMonteCarloValidation(t *testing.T) {
 			t.Logf("%s, %s corner %.6g Hz: GUM ±%.3g Hz, Monte Carlo [%.6g, %.6g]; d_low %.3g, d_high %.3g, δ %.3g: validated %v",
 				c.name, side.name, *side.y, *side.U, side.iv.Low95Hz, side.iv.High95Hz, v.DLowHz, v.DHighHz, v.DeltaHz, v.Pass)
 			half := (side.iv.High95Hz - side.iv.Low95Hz) / 2
-			if math.Abs(half-*side.U) > 0.15**side.U {
-				t.Errorf("%s %s: Monte Carlo half-width %g Hz, GUM U %g Hz: want within 15 %%", c.name, side.name, half, *side.U)
+			if !(half >= 0.8**side.U && half <= 1.15**side.U) {
+				t.Errorf("%s %s: Monte Carlo half-width %g Hz, GUM U %g Hz: want 0.8 to 1.15 times U", c.name, side.name, half, *side.U)
 			}
 			if mid := (side.iv.High95Hz + side.iv.Low95Hz) / 2; math.Abs(mid-*side.y) > 0.1**side.U {
 				t.Errorf("%s %s: Monte Carlo interval centred at %g Hz, corner %g Hz", c.name, side.name, mid, *side.y)
