@@ -8,13 +8,18 @@
 #   make battery       the analysis' reference battery (testdata/battery):
 #                      every design, density, grid and noise level; prints
 #                      the table and fails when a target is missed
+#   make coverage      the corners' k = 2 intervals against the truth over
+#                      COVERAGE_RUNS (default 200) seeded sweeps of the
+#                      imperfect simulated demo bench
 
 SHELL := /bin/bash
 GO ?= go
 FUZZTIME ?= 10s
 STATICCHECK ?= $(shell $(GO) env GOPATH)/bin/staticcheck
 
-.PHONY: test reliability fuzz lint battery
+.PHONY: test reliability fuzz lint battery coverage
+
+COVERAGE_RUNS ?= 200
 
 test:
 	$(GO) test ./...
@@ -34,6 +39,9 @@ fuzz:
 
 battery:
 	ROLLOFF_BATTERY=1 $(GO) test ./sweep/analysis/ -run '^TestBattery$$' -count=1 -timeout 60m
+
+coverage:
+	ROLLOFF_COVERAGE_RUNS=$(COVERAGE_RUNS) $(GO) test ./sweep/sched/finish/ -run '^TestCoverage$$' -count=1 -v -timeout 30m
 
 lint:
 	@files=$$(gofmt -l .); \

@@ -136,8 +136,9 @@ func analyzeMain(stdout, stderr io.Writer, args []string) error {
 	var af analysisFlags
 	af.register(fs, true)
 	jsonOut := fs.Bool("json", false, "print result.json instead of the text report (an array for several inputs)")
+	mcTrials := fs.Int("monte-carlo", 0, "also propagate the corners' budget inputs by N Monte Carlo trials (JCGM 101:2008)")
 	fs.Usage = func() {
-		fmt.Fprintf(stderr, "usage: rolloff analyze FILE.csv|RUNDIR... [--json] [--level DB] [--ref-hz HZ | --ref max | --band LO:HI] [--vin VRMS] [--mask FILE] [--through RUN]\n\n"+
+		fmt.Fprintf(stderr, "usage: rolloff analyze FILE.csv|RUNDIR... [--json] [--level DB] [--ref-hz HZ | --ref max | --band LO:HI] [--vin VRMS] [--mask FILE] [--through RUN] [--monte-carlo N]\n\n"+
 			"Prints the figures of each response. Exit status %d when a response fails the mask.\n\n", exitMaskFailed)
 		fs.PrintDefaults()
 	}
@@ -153,6 +154,12 @@ func analyzeMain(stdout, stderr io.Writer, args []string) error {
 	if err != nil {
 		return &exitError{code: 2, err: err}
 	}
+	if *mcTrials < 0 || *mcTrials > analysis.MaxMonteCarloTrials {
+		return &exitError{code: 2, err: fmt.Errorf("--monte-carlo %d: want 1 to %d trials", *mcTrials, analysis.MaxMonteCarloTrials)}
+	}
+	if len(inputs) == 1 {
+		opts.Spec = runSpec(inputs[0])
+	}
 	runs := make([]analysis.Run, 0, len(inputs))
 	for _, in := range inputs {
 		pts, err := export.LoadRun(in, export.ReadOptions{VinVrms: af.vin})
@@ -162,6 +169,9 @@ func analyzeMain(stdout, stderr io.Writer, args []string) error {
 		runs = append(runs, analysis.Run{Name: in, Points: pts})
 	}
 	batch := analysis.AnalyzeBatch(runs, opts)
+	if err := monteCarlo(batch, *mcTrials); err != nil {
+		return err
+	}
 	if len(runs) == 1 && batch.Entries[0].Result == nil {
 		return fmt.Errorf("%s: %s", inputs[0], batch.Entries[0].Err)
 	}

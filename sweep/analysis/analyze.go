@@ -171,6 +171,7 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 		r.FlatnessSpanHz = []float64{math.Pow(10, fa), math.Pow(10, fb)}
 	}
 
+	a.budget(r, pts, c, chosen.refXs(a))
 	r.Agreement = agreement(r.Estimators, r.LowUHz, r.HighUHz)
 
 	if o.Mask != nil {

@@ -18,9 +18,13 @@
 //     slopes, corners, dips and level steps.
 //
 // The noise is the points' Type A uncertainty or, where they declare
-// none, estimated from the data. A model corner's uncertainty is the fit's
-// covariance propagated to the corner; an interpolated corner's adds the
+// none, estimated from the data. A corner's uncertainty is its budget
+// (budget.go, JCGM 100:2008 §5.2): each input grouped by the readings it
+// is common to (a converter range, a flatness band, the generator), so
+// that an error shared by the reference and the corner cancels; the
+// scatter goes through the fit's covariance or, interpolated, adds the
 // spread of other interpolants' crossings (the method error).
+// Result.RunMonteCarlo draws the same inputs (JCGM 101:2008).
 //
 // The reported corners (and the other figures taken from the curve) come
 // from the model when its residual is at the noise level and shows no

@@ -75,6 +75,9 @@ type Options struct {
 	MaxFitPoints int
 	// NoModel skips the model fit; figures then come from interpolation.
 	NoModel bool
+	// Spec is the measuring chain's specification by component, for the
+	// corners' budgets (see Spec); nil uses the points' own figures.
+	Spec *Spec
 }
 
 func (o Options) withDefaults() (Options, error) {

@@ -128,6 +128,7 @@ func (r *Result) Report(w io.Writer) error {
 		}
 		p("%s", line)
 	}
+	r.reportBudget(p)
 	_, err := io.WriteString(w, b.String())
 	return err
 }

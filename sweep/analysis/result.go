@@ -21,12 +21,20 @@ type Result struct {
 	// reference, null when the response does not cross the level on that
 	// side within the sweep; LowBeyondHz/HighBeyondHz then give the bound
 	// (the corner, if any, is below/above it).
-	LowHz        *float64 `json:"low_hz"`
-	HighHz       *float64 `json:"high_hz"`
-	LowUHz       *float64 `json:"low_u_hz"`  // expanded uncertainty of LowHz, k = CoverageFactor
-	HighUHz      *float64 `json:"high_u_hz"` // expanded uncertainty of HighHz
-	LowBeyondHz  *float64 `json:"low_beyond_hz"`
-	HighBeyondHz *float64 `json:"high_beyond_hz"`
+	LowHz   *float64 `json:"low_hz"`
+	HighHz  *float64 `json:"high_hz"`
+	LowUHz  *float64 `json:"low_u_hz"`  // expanded uncertainty of LowHz, k = CoverageFactor
+	HighUHz *float64 `json:"high_u_hz"` // expanded uncertainty of HighHz
+	// LowBudget and HighBudget are the corners' uncertainty budgets
+	// (JCGM 100:2008 §7.2.5): LowUHz and HighUHz are CoverageFactor times
+	// the root-sum-square of their contributions.
+	// Spec is the specification the budgets used (null: the points'
+	// own figures).
+	Spec         *Spec         `json:"spec,omitempty"`
+	LowBudget    []BudgetEntry `json:"low_budget,omitempty"`
+	HighBudget   []BudgetEntry `json:"high_budget,omitempty"`
+	LowBeyondHz  *float64      `json:"low_beyond_hz"`
+	HighBeyondHz *float64      `json:"high_beyond_hz"`
 	// HighUnderRangeFromHz, when the high corner is not found, is the
 	// lowest frequency above the sweep's included points left out as
 	// under range: the sweep went on, but the range could not read the
@@ -72,12 +80,16 @@ type Result struct {
 	Excluded []ExcludedPoint `json:"excluded"` // points left out, and why
 	Through  bool            `json:"through"`  // normalised by a through run
 	Mask     *MaskVerdict    `json:"mask,omitempty"`
+	// MonteCarlo holds the Monte Carlo intervals when they were asked for
+	// (Result.RunMonteCarlo).
+	MonteCarlo *MonteCarlo `json:"monte_carlo,omitempty"`
 
 	// Samples is the response as analysed (all points, sorted by
 	// frequency, excluded ones marked); not part of result.json.
 	Samples []Sample `json:"-"`
 
 	chosen curve
+	budget *budgetInputs
 	interp *Interpolant
 	mask   *Mask
 }

@@ -31,8 +31,12 @@ import (
 // already safe, so a report that cannot be written is returned as an
 // error beside the result, for the scheduler to log.
 func Analyze(p *plan.Plan, dir string, through []point.Point) sched.FinishFunc {
+	return analyzeWith(p, dir, through, nil)
+}
+
+func analyzeWith(p *plan.Plan, dir string, through []point.Point, spec *analysis.Spec) sched.FinishFunc {
 	return func(ctx context.Context, pts []point.Point) ([]byte, error) {
-		opts := analysis.Options{LevelDB: p.Refine.LevelDB, RefHz: p.ReferenceHz, Through: through}
+		opts := analysis.Options{LevelDB: p.Refine.LevelDB, RefHz: p.ReferenceHz, Through: through, Spec: spec}
 		var maskErr error
 		if opts.Mask, maskErr = p.LimitMask(); maskErr != nil {
 			// The plan was validated before the run started.
