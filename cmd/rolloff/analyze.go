@@ -158,7 +158,7 @@ func analyzeMain(stdout, stderr io.Writer, args []string) error {
 		return &exitError{code: 2, err: fmt.Errorf("--monte-carlo %d: want 1 to %d trials", *mcTrials, analysis.MaxMonteCarloTrials)}
 	}
 	if len(inputs) == 1 {
-		opts.Spec = runSpec(inputs[0])
+		opts.Spec = export.RecordedSpec(inputs[0])
 	}
 	runs := make([]analysis.Run, 0, len(inputs))
 	for _, in := range inputs {

@@ -96,6 +96,15 @@ func (a *analysis) search(d *fitData, h fitHints, floorDB float64) []fitted {
 // and slopes, and applies the residual test (see ModelTest).
 func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope) *ModelResult {
 	floorDB, declared, diffDB := a.noiseOf()
+	if sp := a.o.Spec; sp != nil && sp.SettleTolRel > 0 {
+		// What settling leaves of each reading is bounded by the
+		// tolerance the readings were accepted at, independently from
+		// point to point: a rectangular distribution of that half-width
+		// (JCGM 100:2008 §4.3.7), part of every point's scatter about the
+		// response the model describes.
+		settleDB := 20 * math.Log10(1+sp.SettleTolRel) / math.Sqrt(3)
+		floorDB = math.Hypot(floorDB, settleDB)
+	}
 	d := newFitData(a.inc, floorDB, a.o.MaxFitPoints)
 	h := fitHints{lowHz: a.inc[0].FreqHz, highHz: a.inc[len(a.inc)-1].FreqHz}
 	side := func(corner *float64, beyond, end *Slope, falling bool) (orders []int, hint float64, ok bool) {

@@ -1,12 +1,14 @@
 package export
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io/fs"
 	"os"
 	"path/filepath"
 
+	"rolloff/sweep/analysis"
 	"rolloff/sweep/point"
 	"rolloff/sweep/store"
 )
@@ -45,4 +47,22 @@ func LoadRun(path string, opts ReadOptions) ([]point.Point, error) {
 	}
 	defer f.Close()
 	return ReadCSV(f, path, opts)
+}
+
+// RecordedSpec returns the measuring chain's specification that the run's
+// finish step recorded in its result.json (analysis.Result.Spec), so that
+// the run can be analysed again as it was; nil for a directory without
+// one (a CSV file, a run that was not analysed, an older run).
+func RecordedSpec(dir string) *analysis.Spec {
+	data, err := os.ReadFile(filepath.Join(dir, store.FileResult))
+	if err != nil {
+		return nil
+	}
+	var v struct {
+		Spec *analysis.Spec `json:"spec"`
+	}
+	if json.Unmarshal(data, &v) != nil {
+		return nil
+	}
+	return v.Spec
 }
