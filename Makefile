@@ -11,13 +11,17 @@
 #   make coverage      the corners' k = 2 intervals against the truth over
 #                      COVERAGE_RUNS (default 200) seeded sweeps of the
 #                      imperfect simulated demo bench
+#   make battery-regress  the same battery, failing only when a figure is
+#                      worse than recorded in testdata/battery/reached.json
+#                      (each target printed as met or not met); CI runs it
+#   make battery-update   rewrites reached.json from a run (after a gain)
 
 SHELL := /bin/bash
 GO ?= go
 FUZZTIME ?= 10s
 STATICCHECK ?= $(shell $(GO) env GOPATH)/bin/staticcheck
 
-.PHONY: test reliability fuzz lint battery coverage
+.PHONY: test reliability fuzz lint battery battery-regress battery-update coverage
 
 COVERAGE_RUNS ?= 200
 
@@ -42,6 +46,12 @@ battery:
 
 coverage:
 	ROLLOFF_COVERAGE_RUNS=$(COVERAGE_RUNS) $(GO) test ./sweep/sched/finish/ -run '^TestCoverage$$' -count=1 -v -timeout 30m
+
+battery-regress:
+	ROLLOFF_BATTERY_REGRESS=1 $(GO) test ./sweep/analysis/ -run '^TestBatteryRegress$$' -count=1 -timeout 60m
+
+battery-update:
+	ROLLOFF_BATTERY_REGRESS=update $(GO) test ./sweep/analysis/ -run '^TestBatteryRegress$$' -count=1 -timeout 60m -v
 
 lint:
 	@files=$$(gofmt -l .); \
