@@ -22,7 +22,8 @@ import (
 // A saturated reading bounds the output from below only; the range then
 // chosen reads values up to about 700 times that bound (reachRange), so
 // that an output more than that above the starting range's full scale
-// (1.2 V on the 1 mV range) needs a third change: that case is left out.
+// (1.2 V on the 1 mV range) needs a third change: that case is held to
+// three.
 func TestSimRangeHuntTwoChanges(t *testing.T) {
 	if testing.Short() {
 		t.Skip("simulated bench")
@@ -32,8 +33,9 @@ func TestSimRangeHuntTwoChanges(t *testing.T) {
 			for _, lv := range []float64{0.005, 0.05, 0.5} {
 				t.Run(fmt.Sprintf("%s/%d/%gV", strat, start, lv), func(t *testing.T) {
 					cfg := simConfig(t, 10)
+					most := 2
 					if out := lv * 10 * 0.243; out > 700*cfg.Converter.Spec.Ranges[start].FullScaleVrms {
-						t.Skipf("%.3g Vrms at 2 Hz is beyond the reach of one change from %s", out, cfg.Converter.Spec.Ranges[start].Name)
+						most = 3 // beyond the reach of one change from a saturated reading
 					}
 					p := shortPlan(strat)
 					p.Frequencies = plan.Frequencies{Spacing: plan.SpacingList, ListHz: []float64{2}}
@@ -72,7 +74,7 @@ func TestSimRangeHuntTwoChanges(t *testing.T) {
 					if len(res.points) != 1 || len(res.points[0].Flags) != 0 {
 						t.Fatalf("points %+v", res.points)
 					}
-					if len(changes) > 2 {
+					if len(changes) > most {
 						t.Errorf("%d range changes: %s", len(changes), strings.Join(changes, "; "))
 					}
 					t.Logf("%d changes to %s: %s", len(changes), res.points[0].Range, strings.Join(changes, "; "))
