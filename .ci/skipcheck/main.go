@@ -4,8 +4,10 @@
 // "N passed, N failed, N skipped". It exits non-zero when a test failed,
 // a package did not build, or a test was skipped for any reason but an
 // accepted one: a helper or child process of another test, which skips
-// when run on its own, or a check that no unprivileged user can make
-// (listed in accepted below, and accepted only when not root).
+// when run on its own; a long proof that a make target runs, whose reason
+// names that target as "(make TARGET)" and which the Makefile defines; or
+// a check that no unprivileged user can make (listed in accepted below,
+// and accepted only when not root).
 //
 // Usage: go test -json ./... | go run ./.ci/skipcheck
 package main
@@ -16,6 +18,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"regexp"
 	"sort"
 	"strings"
 )
@@ -144,12 +147,33 @@ func skipReason(lines []string) string {
 	return strings.Join(msg, " / ")
 }
 
+// makeTarget finds the make target a skip reason names.
+var makeTarget = regexp.MustCompile(`\(make ([a-z][a-z0-9-]*)\)`)
+
+// makefileHas says whether the Makefile in the working directory (the
+// module's root, where CI runs) defines target.
+func makefileHas(target string) bool {
+	data, err := os.ReadFile("Makefile")
+	if err != nil {
+		return false
+	}
+	for _, l := range strings.Split(string(data), "\n") {
+		if strings.HasPrefix(l, target+":") {
+			return true
+		}
+	}
+	return false
+}
+
 // accepted says whether a skip is one of the accepted kinds, and why.
 func accepted(pkg, test, reason string, root bool) (bool, string) {
 	for _, m := range helperMarks {
 		if strings.Contains(reason, m) {
 			return true, "a " + m + " of another test"
 		}
+	}
+	if m := makeTarget.FindStringSubmatch(reason); m != nil && makefileHas(m[1]) {
+		return true, "a long proof run by make " + m[1]
 	}
 	if why, ok := rootOnly[pkg+"."+test]; ok && !root {
 		return true, why + " (not root)"
