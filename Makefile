@@ -48,7 +48,7 @@ coverage:
 	ROLLOFF_COVERAGE_RUNS=$(COVERAGE_RUNS) $(GO) test ./sweep/sched/finish/ -run '^TestCoverage$$' -count=1 -v -timeout 30m
 
 battery-regress:
-	ROLLOFF_BATTERY_REGRESS=1 $(GO) test ./sweep/analysis/ -run '^TestBatteryRegress$$' -count=1 -timeout 60m
+	ROLLOFF_BATTERY_REGRESS=1 $(GO) test ./sweep/analysis/ -run '^TestBatteryRegress$$' -count=1 -timeout 60m -v
 
 battery-update:
 	ROLLOFF_BATTERY_REGRESS=update $(GO) test ./sweep/analysis/ -run '^TestBatteryRegress$$' -count=1 -timeout 60m -v
