@@ -205,7 +205,7 @@ func (g *bridge) Start(ctx context.Context, id string, p *plan.Plan, resume bool
 		g.release(id)
 		return nil, err
 	}
-	opts := sched.Opts{Resume: resume, SubscriberBuffer: 4096, Finish: finish.AnalyzeSpec(p, r.Dir(), through, finish.SpecOf(g.b.Config, p))}
+	opts := sched.Opts{Resume: resume, SubscriberBuffer: 4096, Finish: finish.Analyze(p, r.Dir(), through, finish.SpecOf(g.b.Config, p))}
 	if g.b.Sim != nil {
 		opts.RangeKnown, opts.CurrentRange = true, g.b.Sim.ConverterRange()
 	}

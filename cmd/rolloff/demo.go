@@ -116,7 +116,7 @@ func runDemoCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer run.Close()
-	opts := sched.Opts{Operator: simOperator(env, b, nil), Finish: finish.AnalyzeSpec(p, run.Dir(), nil, finish.SpecOf(cfg, p))}
+	opts := sched.Opts{Operator: simOperator(env, b, nil), Finish: finish.Analyze(p, run.Dir(), nil, finish.SpecOf(cfg, p))}
 	return sweepAndReport(ctx, env, b, p, run, opts, compare)
 }
 

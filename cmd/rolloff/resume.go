@@ -83,7 +83,7 @@ func runResumeCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer b.Close()
-	opts := sched.Opts{Resume: true, Operator: terminalOperator(env), Finish: finish.AnalyzeSpec(p, run.Dir(), nil, finish.SpecOf(cfg, p))}
+	opts := sched.Opts{Resume: true, Operator: terminalOperator(env), Finish: finish.Analyze(p, run.Dir(), nil, finish.SpecOf(cfg, p))}
 	if b.Sim != nil {
 		opts.Operator = simOperator(env, b, opts.Operator)
 	}

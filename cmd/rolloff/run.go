@@ -93,7 +93,7 @@ func runRunCmd(ctx context.Context, env *cmdEnv, args []string) error {
 		return err
 	}
 	defer run.Close()
-	opts := sched.Opts{Operator: terminalOperator(env), Finish: finish.AnalyzeSpec(p, run.Dir(), through, finish.SpecOf(cfg, p))}
+	opts := sched.Opts{Operator: terminalOperator(env), Finish: finish.Analyze(p, run.Dir(), through, finish.SpecOf(cfg, p))}
 	if b.Sim != nil {
 		opts.Operator = simOperator(env, b, opts.Operator)
 	}

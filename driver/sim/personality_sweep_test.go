@@ -164,7 +164,7 @@ func sweepCorners(t testing.TB, cfg *profile.BenchFile, p *plan.Plan) (lo, hi, w
 	}
 	defer run.Close()
 	inst := onbench.Instruments(b, zerolog.Nop())
-	opts := sched.Opts{Finish: finish.AnalyzeSpec(p, run.Dir(), nil, finish.SpecOf(cfg, p))} // as rolloff run analyses
+	opts := sched.Opts{Finish: finish.Analyze(p, run.Dir(), nil, finish.SpecOf(cfg, p))} // as rolloff run analyses
 	if i := b.Sim.ConverterRange(); i >= 0 {
 		opts.RangeKnown, opts.CurrentRange = true, i
 	}

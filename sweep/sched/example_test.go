@@ -64,7 +64,7 @@ strategy = "remote"
 	}
 	defer run.Close()
 
-	opts := sched.Opts{Finish: finish.Analyze(p, run.Dir(), nil)}
+	opts := sched.Opts{Finish: finish.Analyze(p, run.Dir(), nil, nil)}
 	if i := b.Sim.ConverterRange(); i >= 0 {
 		opts.RangeKnown, opts.CurrentRange = true, i // the simulated switch's position
 	}

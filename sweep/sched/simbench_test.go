@@ -101,7 +101,7 @@ func sweepRun(t testing.TB, ctx context.Context, b *bench.Bench, run *store.Run,
 		}
 	}
 	if opts.Finish == nil && !opts.NoAnalysis {
-		opts.Finish = finish.Analyze(p, run.Dir(), nil)
+		opts.Finish = finish.Analyze(p, run.Dir(), nil, nil)
 	}
 	t0 := time.Now()
 	r := sched.Start(ctx, inst, p, run, opts)

@@ -106,7 +106,7 @@ func sweepSeed(t testing.TB, seed uint64, scale float64, dir string) coverageRun
 		return out
 	}
 	defer run.Close()
-	opts := sched.Opts{Finish: finish.AnalyzeSpec(p, run.Dir(), nil, finish.SpecOf(cfg, p))}
+	opts := sched.Opts{Finish: finish.Analyze(p, run.Dir(), nil, finish.SpecOf(cfg, p))}
 	if i := b.Sim.ConverterRange(); i >= 0 {
 		opts.RangeKnown, opts.CurrentRange = true, i
 	}

@@ -26,15 +26,13 @@ import (
 // reference frequency, against the plan's limit mask, normalised by the
 // points of a through run when through is not empty; the exports; the
 // one-page report (report.pdf); and the analysis as JSON for the run's
-// result event. When the analysis fails the points are still exported,
+// result event. spec is the measuring chain's specification for the
+// corner budgets and the model test (see SpecOf; nil: the points' own
+// figures). When the analysis fails the points are still exported,
 // without figures, and the report says why. The measured points are
 // already safe, so a report that cannot be written is returned as an
 // error beside the result, for the scheduler to log.
-func Analyze(p *plan.Plan, dir string, through []point.Point) sched.FinishFunc {
-	return analyzeWith(p, dir, through, nil)
-}
-
-func analyzeWith(p *plan.Plan, dir string, through []point.Point, spec *analysis.Spec) sched.FinishFunc {
+func Analyze(p *plan.Plan, dir string, through []point.Point, spec *analysis.Spec) sched.FinishFunc {
 	return func(ctx context.Context, pts []point.Point) ([]byte, error) {
 		opts := analysis.Options{LevelDB: p.Refine.LevelDB, RefHz: p.ReferenceHz, Through: through, Spec: spec}
 		var maskErr error

@@ -30,7 +30,7 @@ func TestAnalyzeWritesExportsAndResult(t *testing.T) {
 	const fc = 2000.0
 	p := &plan.Plan{ReferenceHz: 10}
 	dir := newRunDir(t)
-	js, err := Analyze(p, dir, nil)(context.Background(), lowPass(fc))
+	js, err := Analyze(p, dir, nil, nil)(context.Background(), lowPass(fc))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -56,7 +56,7 @@ func TestAnalyzeFailureStillExportsPoints(t *testing.T) {
 	p := &plan.Plan{ReferenceHz: 10}
 	dir := newRunDir(t)
 	pts := lowPass(2000)[:1] // one point: nothing to analyse
-	if _, err := Analyze(p, dir, nil)(context.Background(), pts); err == nil {
+	if _, err := Analyze(p, dir, nil, nil)(context.Background(), pts); err == nil {
 		t.Fatal("one point analysed without error")
 	}
 	if _, err := os.Stat(filepath.Join(dir, "response.csv")); err != nil {

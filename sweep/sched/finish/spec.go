@@ -6,8 +6,6 @@ import (
 	"rolloff/driver/profile"
 	"rolloff/sweep/analysis"
 	"rolloff/sweep/plan"
-	"rolloff/sweep/point"
-	"rolloff/sweep/sched"
 )
 
 // SpecOf returns the measuring chain's specification by component for the
@@ -53,10 +51,4 @@ func SpecOf(b *profile.BenchFile, p *plan.Plan) *analysis.Spec {
 		s.SettleTolRel = p.Settle.Tolerance
 	}
 	return s
-}
-
-// AnalyzeSpec is Analyze with the measuring chain's specification for the
-// corner budgets (see SpecOf; nil: the points' own figures).
-func AnalyzeSpec(p *plan.Plan, dir string, through []point.Point, spec *analysis.Spec) sched.FinishFunc {
-	return analyzeWith(p, dir, through, spec)
 }
