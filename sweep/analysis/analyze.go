@@ -1,6 +1,7 @@
 package analysis
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"sort"
@@ -172,6 +173,11 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 	}
 
 	a.budget(r, pts, c, chosen.refXs(a))
+	if o.MonteCarloCheck > 0 {
+		if err := r.checkByMonteCarlo(o.MonteCarloCheck); err != nil && !errors.Is(err, ErrNoBudget) {
+			return nil, err
+		}
+	}
 	r.Agreement = agreement(r.Estimators, r.LowUHz, r.HighUHz)
 
 	if o.Mask != nil {

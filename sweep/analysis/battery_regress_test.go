@@ -100,7 +100,6 @@ func regressRows(all []*batteryCorner) []regressRow {
 		row            regressRow
 		maxV           float64
 		misses         int
-		covered, total int
 	}
 	var order []string
 	rows := map[string]*acc{}

@@ -182,26 +182,38 @@ func (b *budgetInputs) perturbed(xc float64, d []float64) (float64, bool) {
 }
 
 // sensitivity returns ∂fc/∂e (Hz per unit of the group's error) at the
-// corner xc, by a central difference of the perturbed corner.
+// corner xc, as the central difference of the perturbed corner over
+// e = ±u(e): c·u = [f(x + u) − f(x − u)]/2 (JCGM 100:2008 §5.1.3 Note 2,
+// from memory). A step of the input's own size, not an infinitesimal
+// one: between densely spaced, noisy points the interpolant's local
+// slope changes from one interval to the next, and a derivative taken
+// inside one interval misstates what an error of the input's size does
+// to the corner (the Monte Carlo draws see the secant). Where the ±u
+// step loses the crossing, the step is halved down to u/1000.
 func (b *budgetInputs) sensitivity(xc float64, g group) float64 {
-	d := make([]float64, len(b.xs))
-	e := g.a
+	e := g.u()
 	if !(e > 0) {
 		return 0
 	}
-	e *= 1e-3
-	for k, i := range g.idx {
-		d[i] = g.val[k] * e
+	d := make([]float64, len(b.xs))
+	for try := 0; try < 11; try++ {
+		for k := range d {
+			d[k] = 0
+		}
+		for k, i := range g.idx {
+			d[i] = g.val[k] * e
+		}
+		xp, ok1 := b.perturbed(xc, d)
+		for k := range d {
+			d[k] = -d[k]
+		}
+		xm, ok2 := b.perturbed(xc, d)
+		if ok1 && ok2 {
+			return (math.Pow(10, xp) - math.Pow(10, xm)) / (2 * e)
+		}
+		e /= 2
 	}
-	xp, ok1 := b.perturbed(xc, d)
-	for k := range d {
-		d[k] = -d[k]
-	}
-	xm, ok2 := b.perturbed(xc, d)
-	if !ok1 || !ok2 {
-		return math.NaN()
-	}
-	return (math.Pow(10, xp) - math.Pow(10, xm)) / (2 * e)
+	return math.NaN()
 }
 
 // table returns the budget of corner side (0 low, 1 high) and the

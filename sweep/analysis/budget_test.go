@@ -1,6 +1,7 @@
 package analysis
 
 import (
+	"errors"
 	"math"
 	"testing"
 
@@ -154,5 +155,59 @@ func TestValidateDelta(t *testing.T) {
 	v = Validate(0.000170*1e3, 2*0.00017, 2, MonteCarloInterval{Low95Hz: 0.17 - 0.00034, High95Hz: 0.17 + 0.00034}, 2)
 	if math.Abs(v.DeltaHz-0.000005) > 1e-15 || !v.Pass {
 		t.Errorf("δ %g (want 0.000005), pass %v", v.DeltaHz, v.Pass)
+	}
+}
+
+// TestMonteCarloCheck: Analyze with a Monte Carlo check validates each
+// corner (JCGM 101:2008 §8) and never reports an interval that leaves out
+// the Monte Carlo 95 % interval, on a response whose corner lies among
+// densely refined, noisy points read by interpolation (no model), where
+// the budget's linearisation is least trustworthy; the figures repeat
+// exactly for the same points (seeded draws).
+func TestMonteCarloCheck(t *testing.T) {
+	spec := &Spec{ConverterRangeGainRel: 0.005, SettleTolRel: 0.002,
+		ConverterFlatness: []SpecBand{{FromHz: 1, ToHz: 9000, Rel: 0.003}, {FromHz: 9000, ToHz: 1e7, Rel: 0.01}}}
+	const fc = 10e3
+	gain := func(f float64) float64 { return butterworthDB(f, fc, 3) }
+	pts := synth(gain, 10, 1e6, 12)
+	// Refinement points 0.05 % apart across the corner, with a scatter
+	// (seeded by index) bigger than their spacing resolves.
+	for k := -6; k <= 6; k++ {
+		f := fc * (1 + 0.0005*float64(k))
+		g := gain(f) + 0.004*math.Sin(float64(7*k))
+		pts = append(pts, point.Point{Seq: len(pts), FreqHz: f, VinVrms: 1, VoutVrms: math.Pow(10, g/20), GainDB: g})
+	}
+	pts = specPoints(pts, func(float64) int { return 0 })
+	opts := Options{Spec: spec, RefHz: 100, NoModel: true, MonteCarloCheck: DefaultMonteCarloCheck}
+	r, err := Analyze(pts, opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.HighHz == nil || r.HighUHz == nil || r.MonteCarlo == nil || r.MonteCarlo.High == nil || r.MonteCarlo.High.GUM == nil {
+		t.Fatalf("no high corner, U or check: %+v", r.MonteCarlo)
+	}
+	iv, ck := r.MonteCarlo.High, r.MonteCarlo.High.GUM
+	y, U := *r.HighHz, *r.HighUHz
+	t.Logf("corner %.6g Hz: budget ±%.3g Hz, Monte Carlo [%.6g, %.6g], reported ±%.3g Hz, validated %v, widened %v",
+		y, ck.UHz, iv.Low95Hz, iv.High95Hz, U, ck.Validation.Pass, ck.Widened)
+	if U < ck.UHz {
+		t.Errorf("reported U %g Hz below the budget's %g Hz", U, ck.UHz)
+	}
+	if !ck.Validation.Pass && (iv.Low95Hz < y-U-1e-9*y || iv.High95Hz > y+U+1e-9*y) {
+		t.Errorf("not validated, yet the Monte Carlo interval [%g, %g] is not inside %g ± %g", iv.Low95Hz, iv.High95Hz, y, U)
+	}
+	if ck.Widened == (U == ck.UHz) {
+		t.Errorf("widened %v with U %g and the budget's %g", ck.Widened, U, ck.UHz)
+	}
+	again, err := Analyze(pts, opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if *again.HighUHz != U {
+		t.Errorf("same points, U %g then %g Hz", U, *again.HighUHz)
+	}
+	opts.MonteCarloCheck = -1
+	if _, err := Analyze(pts, opts); !errors.Is(err, ErrOptions) {
+		t.Errorf("MonteCarloCheck -1: %v, want ErrOptions", err)
 	}
 }

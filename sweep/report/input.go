@@ -183,7 +183,7 @@ func Load(dir string, opts Options) (*Input, error) {
 	}
 	in.Points = pts
 	in.Mask = maskFor(in, opts)
-	ao := analysis.Options{Mask: in.Mask, Spec: export.RecordedSpec(dir)}
+	ao := analysis.Options{Mask: in.Mask, Spec: export.RecordedSpec(dir), MonteCarloCheck: analysis.DefaultMonteCarloCheck}
 	if p := in.Plan; p != nil {
 		ao.LevelDB, ao.RefHz = p.Refine.LevelDB, p.ReferenceHz
 	}

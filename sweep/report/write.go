@@ -422,7 +422,7 @@ func verdictBlock(d *Doc, in *Input, x, w float64) {
 	d.Y += 1.5
 	d.Heading(x, w, "Uncertainty")
 	d.Font(false, bodyPt, inkText)
-	d.Para(x, w, BudgetLine(in.Points, r), 6)
+	d.Para(x, w, BudgetLine(in.Points, r), 9)
 }
 
 // BudgetLine sums up the points' uncertainty budgets (JCGM 100:2008):
@@ -456,7 +456,43 @@ func BudgetLine(pts []point.Point, r *analysis.Result) string {
 	if r != nil && r.Through {
 		s += " This run was normalised by one."
 	}
+	if r != nil {
+		s += cornerBudgetLine("Low corner", r.LowHz, r.LowUHz, r.LowBudget, mcSide(r, 0))
+		s += cornerBudgetLine("High corner", r.HighHz, r.HighUHz, r.HighBudget, mcSide(r, 1))
+	}
 	return s
+}
+
+func mcSide(r *analysis.Result, side int) *analysis.MonteCarloInterval {
+	if r.MonteCarlo == nil {
+		return nil
+	}
+	if side == 0 {
+		return r.MonteCarlo.Low
+	}
+	return r.MonteCarlo.High
+}
+
+// cornerBudgetLine sums up one corner's budget: its largest contribution
+// and the Monte Carlo check (JCGM 101:2008 §8).
+func cornerBudgetLine(name string, hz, uHz *float64, rows []analysis.BudgetEntry, mc *analysis.MonteCarloInterval) string {
+	if hz == nil || uHz == nil || len(rows) == 0 {
+		return ""
+	}
+	sorted := append([]analysis.BudgetEntry(nil), rows...)
+	sort.SliceStable(sorted, func(i, j int) bool { return sorted[i].ContributionHz > sorted[j].ContributionHz })
+	s := fmt.Sprintf(" %s: mostly %s (%s)", name, sorted[0].Name, analysis.FormatHz(sorted[0].ContributionHz, 2))
+	if mc != nil && mc.GUM != nil {
+		switch {
+		case mc.GUM.Validation.Pass:
+			s += ", validated by Monte Carlo"
+		case mc.GUM.Widened:
+			s += fmt.Sprintf(", U widened from %s to enclose the Monte Carlo interval", analysis.FormatHz(mc.GUM.UHz, 2))
+		default:
+			s += ", U encloses the Monte Carlo interval"
+		}
+	}
+	return s + "."
 }
 
 func median(v []float64) float64 {

@@ -244,41 +244,61 @@ func TestCoverage(t *testing.T) {
 // outcome is logged. The GUM framework's k = 2 is not expected to pass
 // it where one rectangular input dominates (the 95 % quantile of a
 // rectangular distribution is 0.95·a against 2·a/√3, JCGM 101:2008 §9.2),
-// so the test asserts only that the Monte Carlo half-width lies within a
-// factor 0.5 to 1.5 of U and that the two intervals overlap.
+// nor where the corner lies among densely refined points whose noise
+// bends the interpolant within the uncertainty (the linearisation then
+// misstates the spread: the budget's U was half the Monte Carlo
+// half-width in 4 of 20 demo sweeps). So the test asserts what the report
+// promises: the reported interval — widened where the validation failed
+// — encloses an independent Monte Carlo 95 % interval (other seed,
+// 100 000 trials; 3 % of the half-width allowed for the draws), is never
+// narrower than the budget's, and is within a factor 0.5 to 1.5 of the
+// Monte Carlo half-width (not inflated either).
 func TestMonteCarloDemo(t *testing.T) {
 	if testing.Short() {
 		t.Skip("sweeps the simulated bench")
 	}
-	r := coverage(t, 1, 1, 1000)[0]
+	r := coverageRun{err: errors.New("no sweep")}
+	for try := 0; try < 3 && r.err != nil; try++ {
+		r = coverage(t, 1, 1, 1000)[0]
+	}
 	if r.err != nil {
 		t.Fatal(r.err)
 	}
-	res, err := analysis.Analyze(r.points, analysis.Options{LevelDB: r.plan.Refine.LevelDB, RefHz: r.plan.ReferenceHz, Spec: r.spec})
+	res, err := analysis.Analyze(r.points, analysis.Options{LevelDB: r.plan.Refine.LevelDB, RefHz: r.plan.ReferenceHz, Spec: r.spec, MonteCarloCheck: analysis.DefaultMonteCarloCheck})
 	if err != nil {
 		t.Fatal(err)
 	}
+	if res.MonteCarlo == nil {
+		t.Fatal("Analyze with MonteCarloCheck left no Monte Carlo outcome")
+	}
+	checked := []*analysis.MonteCarloInterval{res.MonteCarlo.Low, res.MonteCarlo.High}
 	mc, err := res.RunMonteCarlo(100000, 3)
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, side := range []struct {
+	for i, side := range []struct {
 		name string
 		y, U *float64
 		iv   *analysis.MonteCarloInterval
 	}{{"low", res.LowHz, res.LowUHz, mc.Low}, {"high", res.HighHz, res.HighUHz, mc.High}} {
-		if side.y == nil || side.U == nil || side.iv == nil {
-			t.Fatalf("%s corner: no corner or interval", side.name)
+		if side.y == nil || side.U == nil || side.iv == nil || checked[i] == nil || checked[i].GUM == nil {
+			t.Fatalf("%s corner: no corner, interval or check", side.name)
 		}
-		v := analysis.Validate(*side.y, *side.U, analysis.CoverageFactor, *side.iv, 2)
-		t.Logf("demo %s corner %.6g Hz: GUM ±%.3g Hz, Monte Carlo [%.6g, %.6g]; d_low %.3g, d_high %.3g, δ %.3g: validated %v",
-			side.name, *side.y, *side.U, side.iv.Low95Hz, side.iv.High95Hz, v.DLowHz, v.DHighHz, v.DeltaHz, v.Pass)
+		ck := checked[i].GUM
+		v := analysis.Validate(*side.y, ck.UHz, analysis.CoverageFactor, *side.iv, 2)
+		t.Logf("demo %s corner %.6g Hz: GUM ±%.3g Hz, Monte Carlo [%.6g, %.6g]; d_low %.3g, d_high %.3g, δ %.3g: validated %v; reported ±%.3g Hz (widened %v)",
+			side.name, *side.y, ck.UHz, side.iv.Low95Hz, side.iv.High95Hz, v.DLowHz, v.DHighHz, v.DeltaHz, v.Pass, *side.U, ck.Widened)
 		half := (side.iv.High95Hz - side.iv.Low95Hz) / 2
+		t.Logf("%s: Monte Carlo half-width / budget's U = %.2f", side.name, half/ck.UHz)
 		if !(half >= 0.5**side.U && half <= 1.5**side.U) {
-			t.Errorf("%s: Monte Carlo half-width %g Hz, GUM U %g Hz: want 0.5 to 1.5 times U", side.name, half, *side.U)
+			t.Errorf("%s: Monte Carlo half-width %g Hz, reported U %g Hz: want 0.5 to 1.5 times U", side.name, half, *side.U)
 		}
-		if side.iv.High95Hz < *side.y-*side.U || side.iv.Low95Hz > *side.y+*side.U {
-			t.Errorf("%s: Monte Carlo interval [%g, %g] Hz does not overlap %g ± %g Hz", side.name, side.iv.Low95Hz, side.iv.High95Hz, *side.y, *side.U)
+		slack := 0.03 * half
+		if side.iv.Low95Hz < *side.y-*side.U-slack || side.iv.High95Hz > *side.y+*side.U+slack {
+			t.Errorf("%s: Monte Carlo interval [%g, %g] Hz is not inside the reported %g ± %g Hz", side.name, side.iv.Low95Hz, side.iv.High95Hz, *side.y, *side.U)
+		}
+		if *side.U < ck.UHz {
+			t.Errorf("%s: reported U %g Hz below the budget's %g Hz", side.name, *side.U, ck.UHz)
 		}
 	}
 }

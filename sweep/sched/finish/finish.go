@@ -34,7 +34,7 @@ import (
 // error beside the result, for the scheduler to log.
 func Analyze(p *plan.Plan, dir string, through []point.Point, spec *analysis.Spec) sched.FinishFunc {
 	return func(ctx context.Context, pts []point.Point) ([]byte, error) {
-		opts := analysis.Options{LevelDB: p.Refine.LevelDB, RefHz: p.ReferenceHz, Through: through, Spec: spec}
+		opts := analysis.Options{LevelDB: p.Refine.LevelDB, RefHz: p.ReferenceHz, Through: through, Spec: spec, MonteCarloCheck: analysis.DefaultMonteCarloCheck}
 		var maskErr error
 		if opts.Mask, maskErr = p.LimitMask(); maskErr != nil {
 			// The plan was validated before the run started.
