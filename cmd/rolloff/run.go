@@ -233,6 +233,27 @@ func printCorners(w io.Writer, res map[string]any) {
 		}
 	}
 	printMaskVerdict(w, res)
+	printDrift(w, res)
+}
+
+// printDrift prints the drift check of a result (nothing when it has
+// none).
+func printDrift(w io.Writer, res map[string]any) {
+	raw, ok := res["drift"].(map[string]any)
+	if !ok {
+		return
+	}
+	b, err := json.Marshal(raw)
+	if err != nil {
+		return
+	}
+	var d analysis.Drift
+	if json.Unmarshal(b, &d) != nil {
+		return
+	}
+	if line := d.Line(); line != "" {
+		fmt.Fprintf(w, "drift check: %s\n", line)
+	}
 }
 
 // progress shows a run's progress: a bar on a terminal, log lines

@@ -6,6 +6,7 @@ import (
 	"net"
 	"strconv"
 	"strings"
+	"syscall"
 	"testing"
 	"time"
 )
@@ -125,7 +126,9 @@ func TestFaultGone(t *testing.T) {
 	addr := b.Addr(RoleGenerator)
 	c := dial(t, addr)
 	b.Faults(RoleGenerator).Gone(time.Second)
-	if _, err := c.readLine(2 * time.Second); !errors.Is(err, io.EOF) {
+	// Closed by the bench: an orderly EOF, or a reset when the close
+	// races the kernel's delivery (seen under load).
+	if _, err := c.readLine(2 * time.Second); !errors.Is(err, io.EOF) && !errors.Is(err, syscall.ECONNRESET) {
 		t.Errorf("open connection not closed: %v", err)
 	}
 	hostport := strings.TrimPrefix(addr, "tcp://")

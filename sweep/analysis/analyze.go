@@ -25,14 +25,19 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 	}
 	r := &Result{Points: len(pts), LevelDB: o.LevelDB, ReferenceMode: o.RefMode, CoverageFactor: CoverageFactor,
 		Through: len(o.Through) > 0, Samples: samples, Excluded: []ExcludedPoint{}, Crossings: []Crossing{}}
-	var inc []Sample
+	var inc, checks []Sample
 	for _, s := range samples {
+		if isDriftOnly(s) {
+			checks = append(checks, s)
+			continue
+		}
 		if s.Excluded {
 			r.Excluded = append(r.Excluded, ExcludedPoint{Seq: s.Seq, FreqHz: s.FreqHz, Reasons: append([]string{}, s.Reasons...)})
 			continue
 		}
 		inc = append(inc, s)
 	}
+	r.Points -= len(checks)
 	inc = mergeSameFrequency(inc)
 	r.Included = len(inc)
 	if len(inc) < 3 {
@@ -173,6 +178,7 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 	}
 
 	a.budget(r, pts, c, chosen.refXs(a))
+	r.Drift = a.drift(checks, pts, it)
 	if o.MonteCarloCheck > 0 {
 		if err := r.checkByMonteCarlo(o.MonteCarloCheck); err != nil && !errors.Is(err, ErrNoBudget) {
 			return nil, err

@@ -97,9 +97,9 @@ func newFigure(name string, reached, target float64) regressFigure {
 // regressRows computes the battery's figures per row and in total.
 func regressRows(all []*batteryCorner) []regressRow {
 	type acc struct {
-		row            regressRow
-		maxV           float64
-		misses         int
+		row    regressRow
+		maxV   float64
+		misses int
 	}
 	var order []string
 	rows := map[string]*acc{}

@@ -128,6 +128,9 @@ func (r *Result) Report(w io.Writer) error {
 		}
 		p("%s", line)
 	}
+	if line := r.Drift.Line(); line != "" {
+		p("drift:        %s", line)
+	}
 	r.reportBudget(p)
 	_, err := io.WriteString(w, b.String())
 	return err

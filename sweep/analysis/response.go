@@ -111,7 +111,7 @@ func sampleOf(p point.Point) Sample {
 	s.UADB = dbPerRel * b.TypeARel
 	for _, f := range p.Flags {
 		switch f {
-		case point.FlagUnderRange, point.FlagOverRange, point.FlagUnsettled, point.FlagClipped, point.FlagBeyondBand:
+		case point.FlagUnderRange, point.FlagOverRange, point.FlagUnsettled, point.FlagClipped, point.FlagBeyondBand, point.FlagDriftCheck:
 			s.Reasons = append(s.Reasons, f)
 		}
 	}

@@ -83,6 +83,9 @@ type Result struct {
 	// MonteCarlo holds the Monte Carlo intervals when they were asked for
 	// (Result.RunMonteCarlo).
 	MonteCarlo *MonteCarlo `json:"monte_carlo,omitempty"`
+	// Drift is the drift check (null when the run re-measured no
+	// reference).
+	Drift *Drift `json:"drift"`
 
 	// Samples is the response as analysed (all points, sorted by
 	// frequency, excluded ones marked); not part of result.json.

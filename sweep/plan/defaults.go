@@ -36,7 +36,8 @@ const (
 //     the "level" strategy (the level is never raised above what the plan
 //     asks unless max_vrms says so);
 //   - refine.level_db −3.0103 (half power), refine.resolution 0.002,
-//     refine.max_points 24.
+//     refine.max_points 24;
+//   - drift.end "on" (the reference re-measured at the end).
 //
 // It leaves level.vrms alone: there is no default amplitude. Defaults is
 // idempotent; the decoders call it.
@@ -82,6 +83,9 @@ func (p *Plan) Defaults() {
 		if p.Level.MinVrms == 0 {
 			p.Level.MinVrms = p.Level.Vrms / DefaultLevelMinRatio
 		}
+	}
+	if p.Drift.End == "" {
+		p.Drift.End = DriftOn
 	}
 	r := &p.Refine
 	if r.LevelDB == 0 {

@@ -32,6 +32,7 @@ type Plan struct {
 	ReferenceHz float64   `toml:"reference_hz" json:"reference_hz"`
 	Refine      Refine    `toml:"refine" json:"refine"`
 	Normalize   Normalize `toml:"normalize" json:"normalize"`
+	Drift       Drift     `toml:"drift" json:"drift"`
 	// Unit, Batch, Operator and Notes identify what is measured, for the
 	// report and the batch summary (see unit.go).
 	Unit     string `toml:"unit" json:"unit"`
@@ -93,6 +94,36 @@ type Ranging struct {
 	// Start is the range to begin on, by name ("100 mV") or empty for the
 	// bench's current range.
 	Start string `toml:"start" json:"start"`
+}
+
+// Drift re-measures the reference frequency to check the bench for
+// drift: once at the end of the run when End is "on" (what Defaults
+// sets, so a plan file has it unless it says "off"), and after every
+// EveryPoints points of the plan when EveryPoints is above zero. The
+// re-measurements are stored with the points (flagged drift-check) and
+// compared with the sweep's gain there. A Plan built in Go without
+// Defaults has End "" and checks only every EveryPoints points.
+type Drift struct {
+	End         string `toml:"end" json:"end"`                   // "on" (the default) or "off"
+	EveryPoints int    `toml:"every_points" json:"every_points"` // 0: only at the end
+}
+
+// Drift check settings.
+const (
+	DriftOn  = "on"
+	DriftOff = "off"
+)
+
+// DriftChecks returns how many drift checks a plan of n points makes.
+func (d Drift) DriftChecks(n int) int {
+	k := 0
+	if d.EveryPoints > 0 && n > 0 {
+		k = (n - 1) / d.EveryPoints
+	}
+	if d.End == DriftOn {
+		k++
+	}
+	return k
 }
 
 // Refine adds points near the corners, bisected in log f, until the

@@ -71,6 +71,7 @@ func (p *Plan) Validate(lim driver.GeneratorLimits) error {
 	v.settle()
 	v.ranging()
 	v.refine()
+	v.drift()
 	v.unit()
 	if t := p.Normalize.ThroughRun; t != "" {
 		if err := CheckRunID(t); err != nil {
@@ -207,8 +208,11 @@ func (v *validator) frequencies(lim driver.GeneratorLimits) {
 	if p.Refine.Enabled {
 		total += max(p.Refine.MaxPoints, 0)
 	}
+	if p.Drift.EveryPoints >= 0 {
+		total += p.Drift.DriftChecks(len(freqs))
+	}
 	if total > MaxPoints {
-		v.add("frequencies", fmt.Sprintf("%d points", total), fmt.Sprintf("at most %d points per run, refinement included", MaxPoints))
+		v.add("frequencies", fmt.Sprintf("%d points", total), fmt.Sprintf("at most %d points per run, refinement included, drift checks too", MaxPoints))
 	}
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for i, fr := range freqs {
@@ -322,6 +326,16 @@ func (v *validator) ranging() {
 			v.add("ranging.start", strconv.Quote(r.Start), "a range name: letters, digits, space and . , - _ / + %")
 			return
 		}
+	}
+}
+
+func (v *validator) drift() {
+	d := &v.p.Drift
+	if d.End != DriftOn && d.End != DriftOff && d.End != "" {
+		v.add("drift.end", strconv.Quote(d.End), `"on" or "off"`)
+	}
+	if d.EveryPoints < 0 || d.EveryPoints > MaxPoints {
+		v.add("drift.every_points", strconv.Itoa(d.EveryPoints), fmt.Sprintf("must be 0 (only at the end) to %d", MaxPoints))
 	}
 }
 

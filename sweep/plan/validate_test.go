@@ -68,6 +68,8 @@ func TestValidationTable(t *testing.T) {
 			"spacing = \"linear\"\nstart_hz = 20\nstop_hz = 20000\nstep_hz = 0.01\n", nil, "frequencies.step_hz", "at most 100000", 6},
 		{"too many with refinement", "spacing = \"log\"\nstart_hz = 20\nstop_hz = 20000\npoints_per_decade = 10\n",
 			"spacing = \"log\"\nstart_hz = 20\nstop_hz = 20000\npoints = 100000\n[refine]\nenabled = true\n", nil, "frequencies", "refinement included", 2},
+		{"drift end", "strategy = \"fixed\"\n", "strategy = \"fixed\"\n[drift]\nend = \"yes\"\n", nil, "drift.end", `"on" or "off"`, 14},
+		{"drift every", "strategy = \"fixed\"\n", "strategy = \"fixed\"\n[drift]\nevery_points = -3\n", nil, "drift.every_points", "must be 0 (only at the end) to 100000", 14},
 		{"unknown key", "points_per_decade = 10\n", "points_per_decade = 10\nstart_khz = 1\n", nil, "frequencies.start_khz", "allowed in [frequencies]: bands_per_octave", 7},
 		{"unknown table", "[settle]\n", "[setle]\n", nil, "setle", "allowed in the top level", 9},
 		{"string for number", "start_hz = 20\n", "start_hz = \"10kHz\"\n", nil, "frequencies.start_hz", "want a number, got a TOML string", 4},

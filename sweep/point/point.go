@@ -15,6 +15,9 @@ const (
 	// FlagBeyondBand marks a point above the converter's frequency limit,
 	// where its reading is outside the specification.
 	FlagBeyondBand = "beyond-converter-band"
+	// FlagDriftCheck marks a re-measurement of the reference frequency
+	// for the drift check: not part of the response.
+	FlagDriftCheck = "drift-check"
 )
 
 // Point is one measured frequency point.
@@ -53,8 +56,8 @@ func (p Point) Has(f string) bool {
 }
 
 // Excluded reports whether the analysis must leave p out of fits and
-// figures: it is under-range, over-range, clipped, unsettled or beyond the
-// converter's frequency limit.
+// figures: it is under-range, over-range, clipped, unsettled, beyond the
+// converter's frequency limit or a drift check.
 func (p Point) Excluded() bool {
-	return p.Has(FlagUnderRange) || p.Has(FlagOverRange) || p.Has(FlagUnsettled) || p.Has(FlagClipped) || p.Has(FlagBeyondBand)
+	return p.Has(FlagUnderRange) || p.Has(FlagOverRange) || p.Has(FlagUnsettled) || p.Has(FlagClipped) || p.Has(FlagBeyondBand) || p.Has(FlagDriftCheck)
 }

@@ -423,6 +423,12 @@ func verdictBlock(d *Doc, in *Input, x, w float64) {
 	d.Heading(x, w, "Uncertainty")
 	d.Font(false, bodyPt, inkText)
 	d.Para(x, w, BudgetLine(in.Points, r), 9)
+	if r != nil && r.Drift != nil {
+		if line := r.Drift.Line(); line != "" {
+			d.Font(r.Drift.Flagged, bodyPt, inkText)
+			d.Para(x, w, "Drift check: "+line+".", 3)
+		}
+	}
 }
 
 // BudgetLine sums up the points' uncertainty budgets (JCGM 100:2008):

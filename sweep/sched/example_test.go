@@ -80,15 +80,16 @@ strategy = "remote"
 	for _, pt := range pts {
 		// The simulator knows its DUT's exact response.
 		near := math.Abs(pt.GainDB-b.Sim.DUTGainDB(pt.FreqHz)) < 0.05
-		fmt.Printf("%5.0f Hz %+3.0f dB on range %s, within 0.05 dB of the DUT: %v\n", pt.FreqHz, pt.GainDB, pt.Range, near)
+		fmt.Printf("%5.0f Hz %+3.0f dB on range %s, within 0.05 dB of the DUT: %v %v\n", pt.FreqHz, pt.GainDB, pt.Range, near, pt.Flags)
 	}
 	if _, err := os.Stat(filepath.Join(run.Dir(), "response.csv")); err == nil {
 		fmt.Println("response.csv written")
 	}
 	// Output:
-	// done 3 points; output on: false
-	//   100 Hz +20 dB on range 1 V, within 0.05 dB of the DUT: true
-	//  1000 Hz +20 dB on range 1 V, within 0.05 dB of the DUT: true
-	// 10000 Hz +20 dB on range 1 V, within 0.05 dB of the DUT: true
+	// done 4 points; output on: false
+	//   100 Hz +20 dB on range 1 V, within 0.05 dB of the DUT: true []
+	//  1000 Hz +20 dB on range 1 V, within 0.05 dB of the DUT: true []
+	// 10000 Hz +20 dB on range 1 V, within 0.05 dB of the DUT: true []
+	//  1000 Hz +20 dB on range 1 V, within 0.05 dB of the DUT: true [drift-check]
 	// response.csv written
 }

@@ -40,6 +40,7 @@ func TestSimRangeHuntTwoChanges(t *testing.T) {
 					p := shortPlan(strat)
 					p.Frequencies = plan.Frequencies{Spacing: plan.SpacingList, ListHz: []float64{2}}
 					p.ReferenceHz = 2
+					p.Drift.End = plan.DriftOff // one point: the first point's range hunt
 					p.Level.Vrms = lv
 					p.Ranging.Start = cfg.Converter.Spec.Ranges[start].Name
 					var mu sync.Mutex

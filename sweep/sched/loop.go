@@ -183,7 +183,7 @@ func (s *sweeper) run(ctx context.Context) error {
 		}
 	}
 	r.mu.Lock()
-	r.status.Total = s.prog.nPlan + s.refinedCount()
+	r.status.Total = s.prog.nPlan + s.refinedCount() + s.plan.Drift.DriftChecks(s.prog.nPlan)
 	r.status.Done = len(s.prog.pts)
 	r.mu.Unlock()
 	for _, p := range s.sortedPoints() {
@@ -192,6 +192,7 @@ func (s *sweeper) run(ctx context.Context) error {
 	if err := s.prepare(ctx); err != nil {
 		return err
 	}
+	every := s.plan.Drift.EveryPoints
 	for i, f := range freqs {
 		if measured[i] {
 			continue
@@ -199,9 +200,19 @@ func (s *sweeper) run(ctx context.Context) error {
 		if err := s.measure(ctx, i, f.Hz, false, 0); err != nil {
 			return err
 		}
+		if every > 0 && (i+1)%every == 0 && i+1 < len(freqs) {
+			if err := s.driftCheck(ctx); err != nil {
+				return err
+			}
+		}
 	}
 	if err := s.refine(ctx); err != nil {
 		return err
+	}
+	if s.plan.Drift.End == plan.DriftOn {
+		if err := s.driftCheck(ctx); err != nil {
+			return err
+		}
 	}
 	return s.finish(ctx)
 }
@@ -434,7 +445,8 @@ func (s *sweeper) measure(ctx context.Context, idx int, freqHz float64, refined 
 		s.prog.pts = append(s.prog.pts, pt)
 		s.prog.actSum += r.phys() - tStart
 		s.prog.modelSum += s.modelPointS(freqHz)
-		if len(pt.Flags) > 0 && !(len(pt.Flags) == 1 && pt.Has(point.FlagRefined)) {
+		informational := len(pt.Flags) == 1 && (pt.Has(point.FlagRefined) || pt.Has(point.FlagDriftCheck))
+		if len(pt.Flags) > 0 && !informational {
 			r.logEvent(fmt.Sprintf("point %d at %s flagged %v", pt.Seq, analysis.FormatHz(freqHz, 4), pt.Flags))
 		}
 		s.publishProgress()

@@ -96,6 +96,9 @@ func (s *sweeper) attempt(ctx context.Context, idx int, freqHz float64, refined 
 	if pt, again, err = p.assemble(ctx); err != nil || again {
 		return pt, again, err
 	}
+	if s.prog.drift {
+		pt.Flags = append(pt.Flags, point.FlagDriftCheck)
+	}
 	p.learn(pt)
 	return pt, false, nil
 }

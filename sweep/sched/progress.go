@@ -18,7 +18,7 @@ func (s *sweeper) modelPointS(freqHz float64) float64 {
 func (s *sweeper) publishProgress() {
 	r := s.r
 	done := len(s.prog.pts)
-	total := s.prog.nPlan + s.refinedCount()
+	total := s.prog.nPlan + s.refinedCount() + max(s.driftCount(), s.plan.Drift.DriftChecks(s.prog.nPlan))
 	remaining := 0.0
 	measured := map[int]bool{}
 	for _, p := range s.prog.pts {

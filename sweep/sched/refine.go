@@ -14,11 +14,49 @@ import (
 func (s *sweeper) refinedCount() int {
 	n := 0
 	for _, p := range s.prog.pts {
-		if p.Index >= s.prog.nPlan {
+		if p.Index >= s.prog.nPlan && !p.Has(point.FlagDriftCheck) {
 			n++
 		}
 	}
 	return n
+}
+
+// driftCount returns the drift checks measured so far.
+func (s *sweeper) driftCount() int {
+	n := 0
+	for _, p := range s.prog.pts {
+		if p.Has(point.FlagDriftCheck) {
+			n++
+		}
+	}
+	return n
+}
+
+// nextIndex returns the index of a point added beyond the plan's (a
+// refinement or a drift check): past every index stored.
+func (s *sweeper) nextIndex() int {
+	n := s.prog.nPlan
+	for _, p := range s.prog.pts {
+		n = max(n, p.Index+1)
+	}
+	return n
+}
+
+// driftCheck measures the plan's reference frequency again, flagged
+// drift-check, its range and gain predicted from the sweep's points
+// around it.
+func (s *sweeper) driftCheck(ctx context.Context) error {
+	refHz := s.plan.ReferenceHz
+	if refHz <= 0 {
+		refHz = plan.DefaultReferenceHz
+	}
+	pg := 0.0
+	if db, ok := referenceDB(s.sortedPoints(), refHz); ok {
+		pg = math.Pow(10, db/20)
+	}
+	s.prog.drift = true
+	defer func() { s.prog.drift = false }()
+	return s.measure(ctx, s.nextIndex(), refHz, false, pg)
 }
 
 // refineExpected estimates how many points the corner refinement will add:
@@ -113,7 +151,7 @@ func (s *sweeper) refine(ctx context.Context) error {
 			ga := a.VoutVrms / a.VinVrms
 			gb := b.VoutVrms / b.VinVrms
 			pg := math.Sqrt(ga * gb)
-			if err := s.measure(ctx, s.prog.nPlan+s.refinedCount(), f, true, pg); err != nil {
+			if err := s.measure(ctx, s.nextIndex(), f, true, pg); err != nil {
 				return err
 			}
 			found = true

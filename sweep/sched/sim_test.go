@@ -78,8 +78,8 @@ func TestSimSettleSeveralTimeConstants(t *testing.T) {
 				t.Fatal(res.err)
 			}
 			freqs, _ := p.Freqs()
-			if len(res.points) != len(freqs) {
-				t.Fatalf("%d points, plan %d", len(res.points), len(freqs))
+			if want := len(freqs) + p.Drift.DriftChecks(len(freqs)); len(res.points) != want {
+				t.Fatalf("%d points, plan %d and its drift checks %d", len(res.points), len(freqs), want)
 			}
 			checkGains(t, res.b, res.points, p.Settle.Tolerance, taus)
 			// The first point settles from zero: at least the model's
@@ -196,7 +196,7 @@ func TestSimStrategies(t *testing.T) {
 			t.Errorf("%d prompts", len(prompts))
 		}
 		for _, pt := range res.points {
-			if pt.Excluded() {
+			if flaggedOtherThanDrift(pt) {
 				t.Errorf("%g Hz flagged %v", pt.FreqHz, pt.Flags)
 			}
 		}
@@ -232,7 +232,7 @@ func TestSimStrategies(t *testing.T) {
 			t.Errorf("%d prompts", prompts)
 		}
 		for _, pt := range res.points {
-			if pt.Excluded() {
+			if flaggedOtherThanDrift(pt) {
 				t.Errorf("%g Hz flagged %v", pt.FreqHz, pt.Flags)
 			}
 		}
@@ -569,3 +569,14 @@ func TestSimDemoCorners(t *testing.T) {
 }
 
 var _ = sim.RoleGenerator
+
+// flaggedOtherThanDrift reports whether pt carries a flag but the drift
+// check's.
+func flaggedOtherThanDrift(pt point.Point) bool {
+	for _, f := range pt.Flags {
+		if f != point.FlagDriftCheck {
+			return true
+		}
+	}
+	return false
+}

@@ -130,4 +130,5 @@ type progress struct {
 	freqs    []plan.Freq
 	modelSum float64 // model estimate of the points measured so far, physical s
 	actSum   float64 // their actual duration, physical s
+	drift    bool    // the point being measured is a drift check
 }

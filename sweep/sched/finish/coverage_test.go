@@ -40,11 +40,13 @@ type coverageRun struct {
 	points               []point.Point
 	spec                 *analysis.Spec
 	plan                 *plan.Plan
+	result               *analysis.Result // as result.json has it
 }
 
-// imperfectBench returns the demo simulated bench (configs/sim-bench.toml
-// with its profiles) with its systematic errors on, drawn with seed.
-func imperfectBench(seed uint64) (*profile.BenchFile, error) {
+// imperfectBenchWith returns the demo simulated bench
+// (configs/sim-bench.toml with its profiles) with its systematic errors
+// on, drawn with seed, and simLines added to its [sim] table.
+func imperfectBenchWith(seed uint64, simLines string) (*profile.BenchFile, error) {
 	fsys := fstest.MapFS{}
 	for _, n := range configs.Names() {
 		data, err := configs.ReadFile(n)
@@ -58,7 +60,7 @@ func imperfectBench(seed uint64) (*profile.BenchFile, error) {
 	if !seedRe.Match(raw) {
 		return nil, errors.New("sim-bench.toml: no seed line")
 	}
-	raw = seedRe.ReplaceAll(raw, []byte(fmt.Sprintf("seed = %d\nsystematic = true", seed)))
+	raw = seedRe.ReplaceAll(raw, []byte(fmt.Sprintf("seed = %d\nsystematic = true\n%s", seed, simLines)))
 	fsys[configs.SimBench] = &fstest.MapFile{Data: raw}
 	return profile.LoadBenchFS(fsys, configs.SimBench)
 }
@@ -67,8 +69,14 @@ func imperfectBench(seed uint64) (*profile.BenchFile, error) {
 // seed (systematic errors on), time-scaled by scale, and returns its
 // corners.
 func sweepSeed(t testing.TB, seed uint64, scale float64, dir string) coverageRun {
+	return sweepWith(t, seed, scale, dir, "", nil)
+}
+
+// sweepWith is sweepSeed with extra lines in the bench file's [sim]
+// table and the demo plan edited by planEdit (when not nil).
+func sweepWith(t testing.TB, seed uint64, scale float64, dir, simLines string, planEdit func([]byte) []byte) coverageRun {
 	out := coverageRun{seed: seed}
-	cfg, err := imperfectBench(seed)
+	cfg, err := imperfectBenchWith(seed, simLines)
 	if err != nil {
 		out.err = err
 		return out
@@ -78,6 +86,9 @@ func sweepSeed(t testing.TB, seed uint64, scale float64, dir string) coverageRun
 	if err != nil {
 		out.err = err
 		return out
+	}
+	if planEdit != nil {
+		data = planEdit(append([]byte(nil), data...))
 	}
 	p, err := plan.DecodeTOML("demo-plan.toml", data)
 	if err != nil {
@@ -138,6 +149,7 @@ func sweepSeed(t testing.TB, seed uint64, scale float64, dir string) coverageRun
 		return *x
 	}
 	out.low, out.lowU, out.high, out.highU = val(v.LowHz), val(v.LowUHz), val(v.HighHz), val(v.HighUHz)
+	out.result = &v
 	return out
 }
 
