@@ -72,6 +72,10 @@ func bandOf(bands []SpecBand, rangeIndex int, freqHz float64) int {
 const (
 	DistRectangular = "rectangular"
 	DistNormal      = "normal"
+	// DistArcsine is the U-shaped distribution of a sine of amplitude a
+	// read at a random phase: u = a/√2 (JCGM 101:2008 §6.4.6, from
+	// memory).
+	DistArcsine = "arcsine"
 )
 
 // BudgetEntry is one row of a corner's uncertainty budget (JCGM 100:2008
@@ -102,8 +106,11 @@ type group struct {
 }
 
 func (g group) u() float64 {
-	if g.dist == DistRectangular {
+	switch g.dist {
+	case DistRectangular:
 		return g.a / math.Sqrt(3)
+	case DistArcsine:
+		return g.a / math.Sqrt2
 	}
 	return g.a
 }
@@ -389,9 +396,28 @@ func (a *analysis) budget(r *Result, pts []point.Point, c curve, refXs []float64
 		perPoint := func(name, note string, half float64) component {
 			return keyed(name, note, func(i int) (int, float64, bool) { return i, half, true }, one)
 		}
+		// The ripple left by each point's aperture, where the points
+		// record it; else the specification's bound.
+		ripple := keyed("ripple residual", "the converter's 2f ripple left by each point's aperture, read at a random phase, independent from point to point",
+			func(i int) (int, float64, bool) {
+				if r := pt(i).RippleRel; r > 0 {
+					return i, r, true
+				}
+				return i, sp.RippleRel, true
+			}, one)
+		ripple.dist = DistArcsine
+		for gi := range ripple.groups {
+			ripple.groups[gi].dist = DistArcsine
+		}
+		ripple.uShow = show(func(i int) float64 {
+			if r := pt(i).RippleRel; r > 0 {
+				return r / math.Sqrt2
+			}
+			return sp.RippleRel / math.Sqrt2
+		})
 		b.comps = append(b.comps,
 			perPoint("settle residual", "bounded by the settling tolerance, independent from point to point", sp.SettleTolRel),
-			perPoint("ripple residual", "bounded by the ripple over the aperture, independent from point to point", sp.RippleRel))
+			ripple)
 	}
 	// Errors independent from point to point are averaged by a fitted
 	// model as the readings' scatter is: each goes through the fit's

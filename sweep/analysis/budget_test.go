@@ -3,6 +3,7 @@ package analysis
 import (
 	"errors"
 	"math"
+	"math/rand/v2"
 	"testing"
 
 	"rolloff/sweep/point"
@@ -209,5 +210,38 @@ func TestMonteCarloCheck(t *testing.T) {
 	opts.MonteCarloCheck = -1
 	if _, err := Analyze(pts, opts); !errors.Is(err, ErrOptions) {
 		t.Errorf("MonteCarloCheck -1: %v, want ErrOptions", err)
+	}
+}
+
+// TestRippleResidual: a point's recorded residual ripple of amplitude a
+// enters its corner budget as an arcsine input, u = a/√2 (a sine read at
+// a random phase: E[sin²] = 1/2, JCGM 101:2008 §6.4.6), and the Monte
+// Carlo draws of it have that standard deviation.
+func TestRippleResidual(t *testing.T) {
+	const a = 4e-4
+	pts := specPoints(synth(func(f float64) float64 { return butterworthDB(f, 5000, 1) }, 10, 1e6, 20), func(float64) int { return 0 })
+	for i := range pts {
+		pts[i].RippleRel = a
+	}
+	r, err := Analyze(pts, Options{Spec: &Spec{SettleTolRel: 0.002}, RefHz: 100, NoModel: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	e := entry(r.HighBudget, "ripple residual")
+	if e.Distribution != DistArcsine || math.Abs(e.U-a/math.Sqrt2) > 1e-15 || !(e.ContributionHz > 0) {
+		t.Errorf("ripple residual row %+v: want arcsine, u = %g, a contribution", e, a/math.Sqrt2)
+	}
+	rng := rand.New(rand.NewPCG(1, 2))
+	var ss float64
+	const n = 200000
+	for i := 0; i < n; i++ {
+		v := draw(rng, DistArcsine, a)
+		if math.Abs(v) > a {
+			t.Fatalf("arcsine draw %g beyond ±%g", v, a)
+		}
+		ss += v * v
+	}
+	if sd := math.Sqrt(ss / n); math.Abs(sd/(a/math.Sqrt2)-1) > 0.01 {
+		t.Errorf("arcsine draws: standard deviation %g, want %g", sd, a/math.Sqrt2)
 	}
 }

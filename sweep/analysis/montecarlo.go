@@ -158,8 +158,12 @@ func (r *Result) RunMonteCarlo(n int, seed uint64) (*MonteCarlo, error) {
 }
 
 func draw(rng *rand.Rand, dist string, a float64) float64 {
-	if dist == DistRectangular {
+	switch dist {
+	case DistRectangular:
 		return a * (2*rng.Float64() - 1)
+	case DistArcsine:
+		// a·sin φ, φ uniform (JCGM 101:2008 §6.4.6).
+		return a * math.Sin(2*math.Pi*rng.Float64())
 	}
 	return a * rng.NormFloat64()
 }

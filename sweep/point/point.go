@@ -31,18 +31,22 @@ type Point struct {
 	// readable without recomputation.
 	GainDB float64 `json:"gain_db"`
 
-	DCVolts     float64   `json:"dc_v"`          // mean DC output reading, volts
-	RangeIndex  int       `json:"range_index"`   // converter range used
-	Range       string    `json:"range"`         // its name
-	RangeFSVrms float64   `json:"range_fs_vrms"` // its full scale
-	FractionFS  float64   `json:"fraction_fs"`   // reading as a fraction of full scale
-	Readings    int       `json:"readings"`      // readings averaged
-	StdRel      float64   `json:"std_rel"`       // experimental standard deviation of the mean, relative (Type A)
-	ConvAccRel  float64   `json:"conv_acc_rel"`  // converter spec half-width, relative (rectangular)
-	DCAccV      float64   `json:"dc_acc_v"`      // voltmeter DC spec half-width, volts (rectangular)
-	SettleS     float64   `json:"settle_s"`      // physical seconds from setting the frequency to the accepted reading
-	Flags       []string  `json:"flags,omitempty"`
-	Time        time.Time `json:"time"`
+	DCVolts     float64 `json:"dc_v"`          // mean DC output reading, volts
+	RangeIndex  int     `json:"range_index"`   // converter range used
+	Range       string  `json:"range"`         // its name
+	RangeFSVrms float64 `json:"range_fs_vrms"` // its full scale
+	FractionFS  float64 `json:"fraction_fs"`   // reading as a fraction of full scale
+	Readings    int     `json:"readings"`      // readings averaged
+	StdRel      float64 `json:"std_rel"`       // experimental standard deviation of the mean, relative (Type A)
+	ConvAccRel  float64 `json:"conv_acc_rel"`  // converter spec half-width, relative (rectangular)
+	DCAccV      float64 `json:"dc_acc_v"`      // voltmeter DC spec half-width, volts (rectangular)
+	SettleS     float64 `json:"settle_s"`      // physical seconds from setting the frequency to the accepted reading
+	// RippleRel is the amplitude of the converter's residual 2f ripple
+	// left in one reading by the aperture chosen, relative (0: none
+	// stated).
+	RippleRel float64   `json:"ripple_rel,omitempty"`
+	Flags     []string  `json:"flags,omitempty"`
+	Time      time.Time `json:"time"`
 }
 
 // Has reports whether p carries flag f.

@@ -563,6 +563,9 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 		SettleS:  settleS,
 		Time:     r.clock.Now(),
 	}
+	if s.inst.Converter != nil {
+		pt.RippleRel = s.bench.reading.ResidualRel
+	}
 	if p.refined {
 		pt.Flags = append(pt.Flags, point.FlagRefined)
 	}
