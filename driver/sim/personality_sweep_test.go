@@ -180,18 +180,23 @@ func sweepCorners(t testing.TB, cfg *profile.BenchFile, p *plan.Plan) (lo, hi, w
 		t.Fatal(err)
 	}
 	var result struct {
-		LowHz  *float64 `json:"low_hz"`
-		HighHz *float64 `json:"high_hz"`
+		LowHz    *float64        `json:"low_hz"`
+		HighHz   *float64        `json:"high_hz"`
+		Excluded json.RawMessage `json:"excluded"`
 	}
+	var logs []string
 	for _, e := range evs {
 		if e.Type == event.TypeResult {
 			if err := json.Unmarshal(e.Result, &result); err != nil {
 				t.Fatal(err)
 			}
 		}
+		if e.Type == event.TypeLog {
+			logs = append(logs, e.Message)
+		}
 	}
 	if result.LowHz == nil || result.HighHz == nil {
-		t.Fatalf("no corners in the result")
+		t.Fatalf("no corners in the result (low %v, high %v; excluded %s); the run's log: %q", result.LowHz, result.HighHz, result.Excluded, logs)
 	}
 	wantLo, wantHi = b.Sim.DUTCorners(p.Refine.LevelDB)
 	return *result.LowHz, *result.HighHz, wantLo, wantHi, nil
