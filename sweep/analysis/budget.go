@@ -134,6 +134,12 @@ type budgetInputs struct {
 	x0, x1  float64
 	corners [2]*float64 // log10 f of the low and high corner
 	comps   []component
+	// shift, for a fitted model, is the change of ln fc of corner side
+	// when the samples shift by d (dB): the shift goes through the fit,
+	// so that an error on points far from the corner (another range, a
+	// flatness band beyond it) moves the model there. Nil for an
+	// interpolant, where a shift acts locally (see perturbed).
+	shift func(side int, d []float64) float64
 }
 
 // perturbed returns the corner near xc of c + δ, δ the piecewise linear
@@ -189,7 +195,8 @@ func (b *budgetInputs) perturbed(xc float64, d []float64) (float64, bool) {
 }
 
 // sensitivity returns ∂fc/∂e (Hz per unit of the group's error) at the
-// corner xc, as the central difference of the perturbed corner over
+// corner of side (0 low, 1 high): through the fit for a model (linear);
+// for an interpolant, as the central difference of the perturbed corner over
 // e = ±u(e): c·u = [f(x + u) − f(x − u)]/2 (JCGM 100:2008 §5.1.3 Note 2,
 // from memory). A step of the input's own size, not an infinitesimal
 // one: between densely spaced, noisy points the interpolant's local
@@ -197,12 +204,19 @@ func (b *budgetInputs) perturbed(xc float64, d []float64) (float64, bool) {
 // inside one interval misstates what an error of the input's size does
 // to the corner (the Monte Carlo draws see the secant). Where the ±u
 // step loses the crossing, the step is halved down to u/1000.
-func (b *budgetInputs) sensitivity(xc float64, g group) float64 {
+func (b *budgetInputs) sensitivity(side int, g group) float64 {
+	xc := *b.corners[side]
 	e := g.u()
 	if !(e > 0) {
 		return 0
 	}
 	d := make([]float64, len(b.xs))
+	if b.shift != nil {
+		for k, i := range g.idx {
+			d[i] = g.val[k]
+		}
+		return math.Pow(10, xc) * b.shift(side, d)
+	}
 	for try := 0; try < 11; try++ {
 		for k := range d {
 			d[k] = 0
@@ -233,7 +247,7 @@ func (b *budgetInputs) table(side int) ([]BudgetEntry, float64) {
 	for _, c := range b.comps {
 		var c2 float64
 		for _, g := range c.groups {
-			s := b.sensitivity(xc, g)
+			s := b.sensitivity(side, g)
 			if math.IsNaN(s) {
 				continue
 			}
@@ -415,42 +429,33 @@ func (a *analysis) budget(r *Result, pts []point.Point, c curve, refXs []float64
 			}
 			return sp.RippleRel / math.Sqrt2
 		})
-		b.comps = append(b.comps,
-			perPoint("settle residual", "bounded by the settling tolerance, independent from point to point", sp.SettleTolRel),
-			ripple)
+		_ = perPoint
+		settleRes := keyed("settle residual", "what the converter's approach leaves in each point's reading (its model, τ taken 20 % longer, at most the settling tolerance), independent from point to point",
+			func(i int) (int, float64, bool) {
+				if r := pt(i).SettleResidualRel; r != nil {
+					return i, *r, true
+				}
+				return i, sp.SettleTolRel, true
+			}, one)
+		b.comps = append(b.comps, settleRes, ripple)
 	}
-	// Errors independent from point to point are averaged by a fitted
-	// model as the readings' scatter is: each goes through the fit's
-	// covariance, unscaled, in proportion to its share of the points'
-	// uncertainty (a linear least-squares fit's parameters move by
-	// (JᵀWJ)⁻¹JᵀW·δ, JCGM 100:2008 §H.3).
+	// A fitted model takes every shift of the data through the fit
+	// (JCGM 100:2008 §H.3): errors independent from point to point are
+	// averaged as the readings' scatter is, and an error common to a
+	// range or a band moves the model wherever it bends to follow it.
 	if m, ok := c.(*Model); ok && a.cov != nil && r.Model != nil {
+		cv := a.cov
+		fitD := make([]float64, len(cv.xs))
+		b.shift = func(side int, d []float64) float64 {
+			for i, x := range cv.xs {
+				fitD[i] = linearAt(a.xs, d, x)
+			}
+			return cv.cornerShift(m, *b.corners[side], refXs, fitD)
+		}
 		for ci := range b.comps {
-			cm := &b.comps[ci]
-			if cm.name != "settle residual" && cm.name != "ripple residual" {
-				continue
+			if n := b.comps[ci].name; n == "settle residual" || n == "ripple residual" {
+				b.comps[ci].note += "; averaged by the fit"
 			}
-			var rho2 float64
-			for _, g := range cm.groups {
-				if u := a.inc[g.idx[0]].UDB; u > 0 {
-					v := g.val[0] * g.u()
-					rho2 += v * v / (u * u)
-				}
-			}
-			if len(cm.groups) == 0 {
-				continue
-			}
-			rho := math.Sqrt(rho2 / float64(len(cm.groups)))
-			for side := 0; side < 2; side++ {
-				if b.corners[side] != nil {
-					u0 := a.cov.cornerU(m, *b.corners[side], refXs) / math.Sqrt(math.Max(1, a.birge(r.Model)))
-					if !math.IsNaN(u0) {
-						cm.direct[side] = u0 * rho
-					}
-				}
-			}
-			cm.groups = nil
-			cm.note += "; averaged by the fit"
 		}
 	}
 	// Type A.

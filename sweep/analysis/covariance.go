@@ -19,6 +19,11 @@ type covariance struct {
 	st    structure
 	theta []float64
 	c     *mat.SymDense
+	// The fit's linear response to a shift of its data: the projected
+	// Jacobian of the residuals (n×np), the weights, the fit points'
+	// log10 f and (JᵀWJ)⁻¹ unscaled.
+	jac, w, xs []float64
+	c0         *mat.SymDense
 }
 
 func newCovariance(d *fitData, f fitted, declared bool) *covariance {
@@ -51,12 +56,64 @@ func newCovariance(d *fitData, f fitted, declared bool) *covariance {
 	if dof < 1 {
 		return nil
 	}
+	c0 := mat.NewSymDense(np, nil)
+	c0.CopySym(c)
 	scale := f.chi2 / dof
 	if declared {
 		scale = math.Max(1, scale)
 	}
 	c.ScaleSym(scale, c)
-	return &covariance{st: f.st, theta: th, c: c}
+	return &covariance{st: f.st, theta: th, c: c, jac: append([]float64(nil), e.jac...), w: append([]float64(nil), d.w...),
+		xs: append([]float64(nil), d.xs...), c0: c0}
+}
+
+// cornerShift returns the change of ln fc for a corner at xc on the model
+// m (reference at ref) when the fitted data shift by delta (dB, one per
+// fit point): the fit's parameters move by Δθ = −(JᵀWJ)⁻¹JᵀW·δ (the
+// linearised least-squares solution, JCGM 100:2008 §H.3; a shift common
+// to every point goes into the gain, which the projected Jacobian
+// leaves out), and ln fc by ∇ln fc · Δθ.
+func (cv *covariance) cornerShift(m *Model, xc float64, ref []float64, delta []float64) float64 {
+	v := cv.cornerGrad(m, xc, ref)
+	if v == nil || len(delta) != len(cv.w) {
+		return math.NaN()
+	}
+	np := len(cv.theta)
+	jtw := mat.NewVecDense(np, nil)
+	for i, dl := range delta {
+		if dl == 0 {
+			continue
+		}
+		for a := 0; a < np; a++ {
+			jtw.SetVec(a, jtw.AtVec(a)+cv.jac[i*np+a]*cv.w[i]*dl)
+		}
+	}
+	var dth mat.VecDense
+	dth.MulVec(cv.c0, jtw)
+	return -mat.Dot(v, &dth)
+}
+
+// cornerGrad returns ∂ln fc/∂θ for a corner at xc on the model m, the
+// reference at ref (see cornerU); nil where the slope is zero.
+func (cv *covariance) cornerGrad(m *Model, xc float64, ref []float64) *mat.VecDense {
+	np := len(cv.theta)
+	gc, gr, tmp := make([]float64, np), make([]float64, np), make([]float64, np)
+	cv.grad(xc, gc)
+	for _, x := range ref {
+		cv.grad(x, tmp)
+		for i := range gr {
+			gr[i] += tmp[i] / float64(len(ref))
+		}
+	}
+	slope := m.slopeLog(xc) / math.Ln10 // dB per neper
+	if slope == 0 {
+		return nil
+	}
+	v := mat.NewVecDense(np, nil)
+	for i := range gc {
+		v.SetVec(i, -(gc[i]-gr[i])/slope)
+	}
+	return v
 }
 
 // grad returns ∂g/∂θ at x = log10 f for the model of the covariance.
@@ -87,22 +144,9 @@ func (cv *covariance) cornerU(m *Model, xc float64, ref []float64) float64 {
 	if cv == nil {
 		return math.NaN()
 	}
-	np := len(cv.theta)
-	gc, gr, tmp := make([]float64, np), make([]float64, np), make([]float64, np)
-	cv.grad(xc, gc)
-	for _, x := range ref {
-		cv.grad(x, tmp)
-		for i := range gr {
-			gr[i] += tmp[i] / float64(len(ref))
-		}
-	}
-	slope := m.slopeLog(xc) / math.Ln10 // dB per neper
-	if slope == 0 {
+	v := cv.cornerGrad(m, xc, ref)
+	if v == nil {
 		return math.NaN()
-	}
-	v := mat.NewVecDense(np, nil)
-	for i := range gc {
-		v.SetVec(i, -(gc[i]-gr[i])/slope)
 	}
 	return math.Sqrt(math.Max(mat.Inner(v, cv.c, v), 0))
 }

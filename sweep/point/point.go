@@ -44,9 +44,15 @@ type Point struct {
 	// RippleRel is the amplitude of the converter's residual 2f ripple
 	// left in one reading by the aperture chosen, relative (0: none
 	// stated).
-	RippleRel float64   `json:"ripple_rel,omitempty"`
-	Flags     []string  `json:"flags,omitempty"`
-	Time      time.Time `json:"time"`
+	RippleRel float64 `json:"ripple_rel,omitempty"`
+	// SettleResidualRel bounds what is left of the converter's approach
+	// in the point's reading, relative: the approach the converter's
+	// model gives from its state before the step, with its time constant
+	// taken 20 % longer than stated, capped at the settle tolerance. Nil
+	// where no model was known (the tolerance bounds it).
+	SettleResidualRel *float64  `json:"settle_residual_rel,omitempty"`
+	Flags             []string  `json:"flags,omitempty"`
+	Time              time.Time `json:"time"`
 }
 
 // Has reports whether p carries flag f.

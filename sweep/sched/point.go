@@ -566,6 +566,9 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 	if s.inst.Converter != nil {
 		pt.RippleRel = s.bench.reading.ResidualRel
 	}
+	if r, ok := p.settleResidual(win, mean); ok {
+		pt.SettleResidualRel = &r
+	}
 	if p.refined {
 		pt.Flags = append(pt.Flags, point.FlagRefined)
 	}
@@ -581,6 +584,36 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 		pt.Flags = append(pt.Flags, point.FlagUnsettled)
 	}
 	return pt, false, nil
+}
+
+// tauMargin is how much longer than stated a converter's time constant
+// is taken when bounding what is left of an approach.
+const tauMargin = 1.2
+
+// settleResidual bounds the relative offset left in the mean of the
+// window win (the readings accepted, mean Vrms) by the converter's
+// approach: the first-order approach from the converter's modelled state
+// before the step (both states when the range change's effect was
+// unknown) to the mean, with the time constant tauMargin times the
+// stated one, averaged over the window's readings and capped at the
+// settle tolerance. ok is false without a converter model or readings.
+func (p *pointRun) settleResidual(win []settle.Sample, mean float64) (float64, bool) {
+	if !(p.tau > 0) || len(win) == 0 || !(mean > 0) || !p.cv.Converged() || p.over || p.clipped {
+		return 0, false
+	}
+	starts := []float64{p.y0}
+	if p.alt {
+		starts = append(starts, p.y0alt)
+	}
+	worst := 0.0
+	for _, y0 := range starts {
+		var sum float64
+		for _, smp := range win {
+			sum += settle.Residual(tauMargin*p.tau, math.Sqrt(math.Max(0, y0)), mean, smp.TS)
+		}
+		worst = math.Max(worst, sum/float64(len(win)))
+	}
+	return math.Min(worst, p.tol), true
 }
 
 // converterFlags records the range and the converter's window status of

@@ -218,7 +218,7 @@ func TestCoverage(t *testing.T) {
 	var failed int
 	for _, side := range []string{"low", "high"} {
 		in, total := 0, 0
-		var rel []float64
+		var rel, norm []float64
 		for _, r := range runs {
 			if r.err != nil {
 				failed++
@@ -233,6 +233,20 @@ func TestCoverage(t *testing.T) {
 				in++
 			}
 			rel = append(rel, u/f)
+			norm = append(norm, math.Abs(f-truth)/u)
+			if math.Abs(f-truth) > 1.5*u {
+				how := "interpolation"
+				if r.result != nil && r.result.Model != nil && r.result.Model.Accepted {
+					how = "model"
+				}
+				t.Logf("%s corner, seed %d: %.6g Hz ± %.3g Hz (%s), truth %.6g Hz: off by %.2f U", side, r.seed, f, u, how, truth, math.Abs(f-truth)/u)
+			}
+		}
+		sort.Float64s(norm)
+		if len(norm) > 0 {
+			q := func(p float64) float64 { return norm[min(len(norm)-1, int(p*float64(len(norm))))] }
+			t.Logf("%s corner: |error|/U quantiles 50 %% %.3f, 90 %% %.3f, 95 %% %.3f, max %.3f (an honest k = 2 interval has its 95 %% quantile near 1)",
+				side, q(0.5), q(0.9), q(0.95), norm[len(norm)-1])
 		}
 		sort.Float64s(rel)
 		frac := float64(in) / float64(total)
