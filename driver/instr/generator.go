@@ -430,3 +430,11 @@ func GeneratorLimitsFor(p *profile.Generator, bench driver.GeneratorLimits) (dri
 }
 
 var _ driver.SentSettings = (*Generator)(nil)
+
+// WaitsAfterSettings reports whether the profile waits after a setting
+// (dialect.wait_after_settings "opc" or "delay").
+func (g *Generator) WaitsAfterSettings() bool {
+	return g.dialect.WaitAfterSettings == profile.WaitOPC || g.dialect.WaitAfterSettings == profile.WaitDelay
+}
+
+var _ driver.SettlingOutput = (*Generator)(nil)

@@ -137,10 +137,17 @@ func (p *pointRun) step(ctx context.Context) error {
 	s, r := p.s, p.r
 	if !s.bench.freqSet || s.bench.freqHz != p.freqHz {
 		g := s.inst.Generator
+		t0 := r.phys()
 		if err := r.try(ctx, "generator frequency", func(ctx context.Context) error { return g.SetFrequency(ctx, p.freqHz) }); err != nil {
 			return err
 		}
 		s.bench.freqHz, s.bench.freqSet = p.freqHz, true
+		if so, ok := g.(driver.SettlingOutput); ok && so.WaitsAfterSettings() && s.bench.outputOn {
+			// The output may have been interrupted until the setting
+			// completed: the converter counts it as absent from the
+			// command on, so that the dwell covers the recovery.
+			s.conv.step(t0, s.tau(), 0)
+		}
 	}
 	if p.predicted {
 		p.v1 = p.gEst * s.bench.ampVrms
