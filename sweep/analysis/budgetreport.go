@@ -35,11 +35,11 @@ func (r *Result) reportBudget(p func(format string, a ...any)) {
 			switch {
 			case ck.Validation.Pass:
 				p("%-13s the budget's interval is validated (JCGM 101:2008 §8, δ %s)", "", FormatHz(ck.Validation.DeltaHz, 2))
-			case ck.Widened:
-				p("%-13s the budget's interval is not validated (JCGM 101:2008 §8: ends off by %s and %s, δ %s): U widened to %s to enclose the Monte Carlo interval",
+			case ck.Adopted:
+				p("%-13s the budget's interval is not validated (JCGM 101:2008 §8: ends off by %s and %s, δ %s): U is the Monte Carlo interval's, %s",
 					"", FormatHz(ck.Validation.DLowHz, 2), FormatHz(ck.Validation.DHighHz, 2), FormatHz(ck.Validation.DeltaHz, 2), FormatHz(*uHz, 3))
 			default:
-				p("%-13s the budget's interval is not validated (JCGM 101:2008 §8: ends off by %s and %s, δ %s) but encloses the Monte Carlo interval: U kept",
+				p("%-13s the budget's interval is not validated (JCGM 101:2008 §8: ends off by %s and %s, δ %s); U kept",
 					"", FormatHz(ck.Validation.DLowHz, 2), FormatHz(ck.Validation.DHighHz, 2), FormatHz(ck.Validation.DeltaHz, 2))
 			}
 		}

@@ -35,38 +35,36 @@ type MonteCarloInterval struct {
 
 // GUMCheck is the outcome of the validation of one corner's GUM-framework
 // interval by Monte Carlo: the expanded uncertainty the budget gave, the
-// comparison, and whether the reported uncertainty was widened to enclose
-// the Monte Carlo interval because the validation failed.
+// comparison, and whether the reported uncertainty is the Monte Carlo
+// interval's (Adopted) because the validation failed.
 type GUMCheck struct {
 	UHz        float64    `json:"u_hz"`
 	K          float64    `json:"k"`
 	Validation Validation `json:"validation"`
-	Widened    bool       `json:"widened"`
+	Adopted    bool       `json:"adopted"`
 }
 
 // checkByMonteCarlo validates each corner's GUM-framework interval with n
 // seeded Monte Carlo trials (JCGM 101:2008 §8, u(y) stated to two
-// significant digits) and, where the validation fails, widens the
-// reported expanded uncertainty to the larger of the budget's and the
-// half-width that encloses the Monte Carlo 95 % interval about the
-// corner: JCGM 101:2008 §8.4 takes the Monte Carlo interval where the
-// GUM framework's is not validated, and the symmetric enclosure keeps
-// the report's y ± U form without narrowing what the budget claims.
-// The outcome is kept in r.MonteCarlo.
+// significant digits) and, where the validation fails, reports the Monte
+// Carlo 95 % interval instead (JCGM 101:2008 §8.4): as the half-width
+// about the corner that encloses it, to keep the report's y ± U form.
+// This matters where one rectangular input dominates: y ± 2u then covers
+// all of its distribution, the Monte Carlo interval 95 % of it (JCGM
+// 101:2008 §9.2). The outcome is kept in r.MonteCarlo.
 func (r *Result) checkByMonteCarlo(n int) error {
 	mc, err := r.RunMonteCarlo(n, checkSeed)
 	if err != nil {
 		return err
 	}
-	// Where the interval would be widened, its ends come from the tails
-	// of the draws: they are drawn again with five times the trials, so
-	// that the enclosure rests on about 2 500 draws beyond each end
-	// (JCGM 101:2008 §7.9: the interval's numerical accuracy grows with
-	// the trials).
-	widens := func(y, U *float64, iv *MonteCarloInterval) bool {
-		return y != nil && U != nil && iv != nil && math.Max(*y-iv.Low95Hz, iv.High95Hz-*y) > *U
+	// Where the interval is adopted, its ends come from the tails of the
+	// draws: they are drawn again with five times the trials, so that
+	// each end rests on about 2 500 draws beyond it (JCGM 101:2008 §7.9:
+	// the interval's numerical accuracy grows with the trials).
+	fails := func(y, U *float64, iv *MonteCarloInterval) bool {
+		return y != nil && U != nil && iv != nil && !Validate(*y, *U, CoverageFactor, *iv, 2).Pass
 	}
-	if widens(r.LowHz, r.LowUHz, mc.Low) || widens(r.HighHz, r.HighUHz, mc.High) {
+	if fails(r.LowHz, r.LowUHz, mc.Low) || fails(r.HighHz, r.HighUHz, mc.High) {
 		big, err := r.RunMonteCarlo(min(5*n, MaxMonteCarloTrials), checkSeed+1)
 		if err != nil {
 			return err
@@ -83,10 +81,9 @@ func (r *Result) checkByMonteCarlo(n int) error {
 		y, U := **side.y, **side.U
 		ck := &GUMCheck{UHz: U, K: CoverageFactor, Validation: Validate(y, U, CoverageFactor, *side.iv, 2)}
 		if !ck.Validation.Pass {
-			enc := math.Max(y-side.iv.Low95Hz, side.iv.High95Hz-y)
-			if enc > U {
+			if enc := math.Max(y-side.iv.Low95Hz, side.iv.High95Hz-y); enc > 0 {
 				*side.U = ptr(enc)
-				ck.Widened = true
+				ck.Adopted = true
 			}
 		}
 		side.iv.GUM = ck

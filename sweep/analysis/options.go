@@ -81,8 +81,8 @@ type Options struct {
 	// MonteCarloCheck, when above zero, is the number of Monte Carlo
 	// trials with which each corner's GUM-framework interval is validated
 	// (JCGM 101:2008 §8); where the validation fails, the corner's
-	// expanded uncertainty is widened to enclose the Monte Carlo 95 %
-	// interval (see Result.MonteCarlo). The draws are seeded, so that the
+	// expanded uncertainty becomes the half-width enclosing the Monte
+	// Carlo 95 % interval (see Result.MonteCarlo). The draws are seeded, so that the
 	// same points give the same figures. Zero skips the check;
 	// DefaultMonteCarloCheck is what a finished run uses.
 	MonteCarloCheck int

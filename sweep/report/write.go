@@ -492,10 +492,8 @@ func cornerBudgetLine(name string, hz, uHz *float64, rows []analysis.BudgetEntry
 		switch {
 		case mc.GUM.Validation.Pass:
 			s += ", validated by Monte Carlo"
-		case mc.GUM.Widened:
-			s += fmt.Sprintf(", U widened from %s to enclose the Monte Carlo interval", analysis.FormatHz(mc.GUM.UHz, 2))
-		default:
-			s += ", U encloses the Monte Carlo interval"
+		case mc.GUM.Adopted:
+			s += fmt.Sprintf(", U from the Monte Carlo interval (budget's %s)", analysis.FormatHz(mc.GUM.UHz, 2))
 		}
 	}
 	return s + "."

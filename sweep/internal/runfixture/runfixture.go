@@ -142,7 +142,7 @@ func Make(t testing.TB, f Fixture) string {
 	// The finish step's result.json: the analysis with the plan's level
 	// and reference.
 	if pts, err := r.Points(); err == nil {
-		if res, err := analysis.Analyze(pts, analysis.Options{LevelDB: p.Refine.LevelDB, RefHz: p.ReferenceHz}); err == nil {
+		if res, err := analysis.Analyze(pts, analysis.Options{LevelDB: p.Refine.LevelDB, RefHz: p.ReferenceHz, MonteCarloCheck: analysis.DefaultMonteCarloCheck}); err == nil {
 			var b bytes.Buffer
 			if err := export.WriteJSON(&b, res); err != nil {
 				t.Fatal(err)

@@ -271,14 +271,13 @@ func TestCoverage(t *testing.T) {
 // it where one rectangular input dominates (the 95 % quantile of a
 // rectangular distribution is 0.95·a against 2·a/√3, JCGM 101:2008 §9.2),
 // nor where the corner lies among densely refined points whose noise
-// bends the interpolant within the uncertainty (the linearisation then
-// misstates the spread: the budget's U was half the Monte Carlo
-// half-width in 4 of 20 demo sweeps). So the test asserts what the report
-// promises: the reported interval — widened where the validation failed
-// — encloses an independent Monte Carlo 95 % interval (other seed,
-// 100 000 trials; 3 % of the half-width allowed for the draws), is never
-// narrower than the budget's, and is within a factor 0.5 to 1.5 of the
-// Monte Carlo half-width (not inflated either).
+// bends the interpolant within the uncertainty. Where it fails the run
+// reports the Monte Carlo interval (§8.4); the test asserts that the
+// reported interval encloses an independent Monte Carlo 95 % interval
+// (other seed, 100 000 trials; 3 % of the half-width allowed for the
+// draws) and is within a factor 0.5 to 1.5 of its half-width. (The
+// budget's own U was half the Monte Carlo half-width in some interpolated
+// sweeps: logged.)
 func TestMonteCarloDemo(t *testing.T) {
 	if testing.Short() {
 		t.Skip("sweeps the simulated bench")
@@ -312,8 +311,8 @@ func TestMonteCarloDemo(t *testing.T) {
 		}
 		ck := checked[i].GUM
 		v := analysis.Validate(*side.y, ck.UHz, analysis.CoverageFactor, *side.iv, 2)
-		t.Logf("demo %s corner %.6g Hz: GUM ±%.3g Hz, Monte Carlo [%.6g, %.6g]; d_low %.3g, d_high %.3g, δ %.3g: validated %v; reported ±%.3g Hz (widened %v)",
-			side.name, *side.y, ck.UHz, side.iv.Low95Hz, side.iv.High95Hz, v.DLowHz, v.DHighHz, v.DeltaHz, v.Pass, *side.U, ck.Widened)
+		t.Logf("demo %s corner %.6g Hz: GUM ±%.3g Hz, Monte Carlo [%.6g, %.6g]; d_low %.3g, d_high %.3g, δ %.3g: validated %v; reported ±%.3g Hz (adopted %v)",
+			side.name, *side.y, ck.UHz, side.iv.Low95Hz, side.iv.High95Hz, v.DLowHz, v.DHighHz, v.DeltaHz, v.Pass, *side.U, ck.Adopted)
 		half := (side.iv.High95Hz - side.iv.Low95Hz) / 2
 		t.Logf("%s: Monte Carlo half-width / budget's U = %.2f", side.name, half/ck.UHz)
 		if !(half >= 0.5**side.U && half <= 1.5**side.U) {
@@ -322,9 +321,6 @@ func TestMonteCarloDemo(t *testing.T) {
 		slack := 0.03 * half
 		if side.iv.Low95Hz < *side.y-*side.U-slack || side.iv.High95Hz > *side.y+*side.U+slack {
 			t.Errorf("%s: Monte Carlo interval [%g, %g] Hz is not inside the reported %g ± %g Hz", side.name, side.iv.Low95Hz, side.iv.High95Hz, *side.y, *side.U)
-		}
-		if *side.U < ck.UHz {
-			t.Errorf("%s: reported U %g Hz below the budget's %g Hz", side.name, *side.U, ck.UHz)
 		}
 	}
 }
