@@ -45,7 +45,7 @@ battery:
 	ROLLOFF_BATTERY=1 $(GO) test ./sweep/analysis/ -run '^TestBattery$$' -count=1 -timeout 60m
 
 coverage:
-	ROLLOFF_COVERAGE_RUNS=$(COVERAGE_RUNS) $(GO) test ./sweep/sched/finish/ -run '^TestCoverage$$' -count=1 -v -timeout 30m
+	ROLLOFF_COVERAGE_RUNS=$(COVERAGE_RUNS) $(GO) test ./sweep/sched/finish/ -run '^TestCoverage$$' -count=1 -v -timeout 90m
 
 battery-regress:
 	ROLLOFF_BATTERY_REGRESS=1 $(GO) test ./sweep/analysis/ -run '^TestBatteryRegress$$' -count=1 -timeout 60m -v
