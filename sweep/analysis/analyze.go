@@ -27,7 +27,7 @@ func Analyze(pts []point.Point, opts Options) (*Result, error) {
 		Through: len(o.Through) > 0, Samples: samples, Excluded: []ExcludedPoint{}, Crossings: []Crossing{}}
 	var inc, checks []Sample
 	for _, s := range samples {
-		if isDriftOnly(s) {
+		if isDriftCheck(s) {
 			checks = append(checks, s)
 			continue
 		}

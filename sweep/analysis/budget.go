@@ -407,9 +407,6 @@ func (a *analysis) budget(r *Result, pts []point.Point, c curve, refXs []float64
 			fl.note = gen
 		}
 		b.comps = append(b.comps, fl)
-		perPoint := func(name, note string, half float64) component {
-			return keyed(name, note, func(i int) (int, float64, bool) { return i, half, true }, one)
-		}
 		// The ripple left by each point's aperture, where the points
 		// record it; else the specification's bound.
 		ripple := keyed("ripple residual", "the converter's 2f ripple left by each point's aperture, read at a random phase, independent from point to point",
@@ -429,7 +426,6 @@ func (a *analysis) budget(r *Result, pts []point.Point, c curve, refXs []float64
 			}
 			return sp.RippleRel / math.Sqrt2
 		})
-		_ = perPoint
 		settleRes := keyed("settle residual", "what the converter's approach leaves in each point's reading (its model, τ taken 20 % longer, at most the settling tolerance), independent from point to point",
 			func(i int) (int, float64, bool) {
 				if r := pt(i).SettleResidualRel; r != nil {

@@ -3,6 +3,7 @@ package analysis
 import (
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strings"
 
@@ -70,17 +71,9 @@ func plural(n int) string {
 	return "s"
 }
 
-// isDriftOnly reports whether a sample is a drift check and excluded for
-// that reason alone.
-func isDriftOnly(s Sample) bool {
-	drift := false
-	for _, r := range s.Reasons {
-		if r == point.FlagDriftCheck {
-			drift = true
-		}
-	}
-	return drift
-}
+// isDriftCheck reports whether a sample is a drift check (whatever else
+// it is flagged for: drift compares it or says why not).
+func isDriftCheck(s Sample) bool { return slices.Contains(s.Reasons, point.FlagDriftCheck) }
 
 // drift compares the drift checks with the response a describes (its
 // included samples and interpolant it). The uncertainty of a change
