@@ -123,6 +123,9 @@ func runFault(t *testing.T, c faultCase) {
 		rf := readRunFiles(t, res.dir)
 		if msg, ok := rf.mentions(c.logged...); !ok {
 			t.Errorf("run completed but no event mentions the fault (one of %q)", c.logged)
+			for _, e := range rf.events {
+				t.Logf("event %s: %s", e.Type, e.Message)
+			}
 		} else {
 			t.Logf("%s: done; logged %q", c.name, msg)
 		}

@@ -131,26 +131,44 @@ func (s *sweeper) readOnce(ctx context.Context) (float64, error) {
 }
 
 // singles averages n single readings of read, each started
-// bench.reading.SpacingS after the one before when that is set.
+// bench.reading.SpacingS after the one before when that is set. Each
+// reading's time is the moment its query went out plus half the
+// aperture; where there are enough of them the ripple is fitted out at
+// those times (settle.FitMean), so a host that wakes late leaves no
+// ripple on the value, else they are averaged.
 func (s *sweeper) singles(ctx context.Context, n int, what string, read func(context.Context) (float64, error)) (float64, error) {
 	r := s.r
-	sp := s.bench.reading.SpacingS
+	rd := s.bench.reading
+	sp := rd.SpacingS
 	t0 := r.phys()
-	var sum float64
+	ts := make([]float64, 0, n)
+	vs := make([]float64, 0, n)
 	for k := 0; k < n; k++ {
 		if k > 0 && sp > 0 {
 			if err := r.sleepUntil(ctx, t0+float64(k)*sp); err != nil {
 				return 0, err
 			}
 		}
-		var v float64
-		err := r.try(ctx, what, func(ctx context.Context) (err error) { v, err = read(ctx); return })
+		var v, tS float64
+		err := r.try(ctx, what, func(ctx context.Context) (err error) {
+			tS = r.phys() + rd.ApertureS/2
+			v, err = read(ctx)
+			return
+		})
 		if err != nil {
 			return 0, err
 		}
-		sum += v
+		ts, vs = append(ts, tS), append(vs, v)
 	}
-	return sum / float64(n), nil
+	if n < settle.MinFitReadings || !s.bench.freqSet {
+		var sum float64
+		for _, v := range vs {
+			sum += v
+		}
+		return sum / float64(n), nil
+	}
+	v, _ := settle.FitMean(ts, vs, 2*s.bench.freqHz, settle.FitHarmonics)
+	return v, nil
 }
 
 func (s *sweeper) meter() settle.Meter {

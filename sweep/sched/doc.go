@@ -88,7 +88,9 @@
 //
 // A voltmeter without bursts (MaxBurster saying 1) reads single values;
 // where the ripple needs an average they are spaced on whole fractions of
-// its period (settle.Reading.SpacingS), and their query round trip, timed
+// its period (settle.Reading.SpacingS), at least settle.MinFitReadings of
+// them, and the ripple is fitted out at the times they were actually taken
+// (settle.FitMean), which a loaded host makes late; their query round trip, timed
 // when the run starts, is part of every reading's cost. A meter that
 // cannot set its integration time (settle.Meter.Fixed) is sent none. An
 // AC-reading DMM (no converter) is paced by its own RMS filter

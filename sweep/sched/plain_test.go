@@ -3,11 +3,14 @@ package sched_test
 import (
 	"context"
 	"errors"
+	"math/rand/v2"
 	"os"
 	"path"
 	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
+	"time"
 
 	"rolloff/configs"
 	"rolloff/driver/profile"
@@ -62,6 +65,42 @@ func TestPlainMeterSweep(t *testing.T) {
 	if len(res.points) < 10 {
 		t.Fatalf("%d points", len(res.points))
 	}
+}
+
+// lateClock is the wall clock of a loaded host: every sleep overruns by
+// up to maxLate, drawn from a seeded source.
+type lateClock struct {
+	mu      sync.Mutex
+	rng     *rand.Rand
+	maxLate time.Duration
+}
+
+func (c *lateClock) Now() time.Time { return time.Now() }
+
+func (c *lateClock) Sleep(ctx context.Context, d time.Duration) error {
+	c.mu.Lock()
+	late := time.Duration(c.rng.Int64N(int64(c.maxLate)))
+	c.mu.Unlock()
+	return sched.WallClock.Sleep(ctx, d+late)
+}
+
+// TestPlainMeterLateHost: the plain meter's spaced readings taken by a
+// host whose every sleep overruns by up to 4 ms (8 ms of model time at
+// time scale 2, a few percent of the 4 Hz ripple's period at 2 Hz) still
+// agree with the DUT: the ripple is fitted out at the times the readings
+// were taken. Averaged as before, readings two or three to a value on
+// nominal nulls of the ripple, the same run was off by −0.64 % at 2 Hz
+// and +1.1 % at 4.6 Hz (tolerance ±0.4 %).
+func TestPlainMeterLateHost(t *testing.T) {
+	cfg := plainConfig(t, "plain-bench.toml", 2)
+	p := shortPlan(plan.RangeRemote)
+	p.Frequencies.StopHz = 1000
+	clk := &lateClock{rng: rand.New(rand.NewPCG(7, 8)), maxLate: 4 * time.Millisecond}
+	res := sweepOn(t, context.Background(), cfg, p, sched.Opts{NoAnalysis: true, Clock: clk}, nil)
+	if res.err != nil {
+		t.Fatal(res.err)
+	}
+	checkGains(t, res.b, res.points, p.Settle.Tolerance, rangeTaus(res.b))
 }
 
 // TestPlainMeterProfileNeedsFixedAperture: a profile that can set no

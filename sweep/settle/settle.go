@@ -336,10 +336,20 @@ func ChooseAperture(freqHz, tauS, targetRel float64, m Meter) (Reading, error) {
 	if len(cands) == 0 {
 		cands = []float64{m.MinApertureS, (m.MinApertureS + m.MaxApertureS) / 2, m.MaxApertureS}
 	}
+	// A meter of single readings averages readings it times itself, which
+	// a loaded host delays: a mean of two or three readings that nulls the
+	// ripple on paper leaves a large part of it for a few milliseconds'
+	// delay (at 2 Hz on a 0.15 s converter, 1 % for 5 ms). It takes at
+	// least MinFitReadings, whose ripple FitMean removes at the times
+	// they were actually taken.
+	n0 := 2
+	if m.Singles {
+		n0 = MinFitReadings
+	}
 	var found *Reading
 	for _, t := range cands {
 		p := t + m.OverheadS
-		for n := 2; n <= 1000; n++ {
+		for n := n0; n <= 1000; n++ {
 			r, ok := burstReading(freqHz, t, p, n, amp, targetRel, m.Singles)
 			if r.ResidualRel < best.ResidualRel {
 				best = r
@@ -361,14 +371,14 @@ func ChooseAperture(freqHz, tauS, targetRel float64, m Meter) (Reading, error) {
 // burstReading returns the mean of n readings of aperture tS at the
 // ripple amplitude amp: back to back, p apart, and, when spaced (a meter
 // of single readings), also the shortest spacing not under p that puts
-// the n readings on whole fractions of the ripple period, a null of the
-// comb (sin(nπ·2f·s) = 0, sin(π·2f·s) ≠ 0), keeping the better of the
-// two. ok reports that it meets targetRel.
+// the n readings on n distinct whole fractions of the ripple period (k/n
+// periods apart, k prime to n), a null of the comb (sin(nπ·2f·s) = 0,
+// sin(π·2f·s) ≠ 0), keeping the better of the two. ok reports that it meets targetRel.
 func burstReading(freqHz, tS, p float64, n int, amp, targetRel float64, spaced bool) (r Reading, ok bool) {
 	r = Reading{ApertureS: tS, Average: n, ResidualRel: amp * burstAtten(freqHz, tS, p, n)}
 	if spaced && r.ResidualRel > targetRel {
 		k := math.Ceil(p*2*freqHz*float64(n) - 1e-9)
-		if int(k)%n == 0 {
+		for gcd(int(k), n) != 1 { // n distinct phases of the ripple
 			k++
 		}
 		s := k / (2 * freqHz * float64(n))
@@ -377,6 +387,14 @@ func burstReading(freqHz, tS, p float64, n int, amp, targetRel float64, spaced b
 		}
 	}
 	return r, r.ResidualRel <= targetRel
+}
+
+// gcd returns the greatest common divisor of a and b.
+func gcd(a, b int) int {
+	for b != 0 {
+		a, b = b, a%b
+	}
+	return a
 }
 
 // burstAtten is the attenuation of a sinusoid at 2f by the mean of n

@@ -32,7 +32,9 @@ func meanOfReadings(freqHz, tS, sS float64, n int) float64 {
 // averaged by readings spaced on whole fractions of its period; the
 // residual ChooseAperture predicts is the direct integral's (to the
 // integration's accuracy), and meets the target where back-to-back
-// readings would not.
+// readings would not. It takes at least MinFitReadings of them, on as many
+// distinct phases of the ripple, so that FitMean can remove the ripple
+// left by readings taken late.
 func TestSpacedSingles(t *testing.T) {
 	m := Meter{AperturesS: []float64{0.02}, Fixed: true, Singles: true, OverheadS: 0.025}
 	const tau, target = 0.15, 0.0005
@@ -41,14 +43,23 @@ func TestSpacedSingles(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%g Hz: %v", f, err)
 		}
-		if rd.Average < 2 || rd.SpacingS < rd.ApertureS+m.OverheadS-1e-12 {
-			t.Fatalf("%g Hz: %+v: want spaced readings, not under the query time", f, rd)
+		sp := rd.SpacingS
+		if sp == 0 {
+			sp = rd.ApertureS + m.OverheadS // back to back
 		}
-		direct := RippleRel(f, tau) * meanOfReadings(f, rd.ApertureS, rd.SpacingS, rd.Average)
+		if rd.Average < MinFitReadings || sp < rd.ApertureS+m.OverheadS-1e-12 {
+			t.Fatalf("%g Hz: %+v: want %d readings or more, not under the query time apart", f, rd, MinFitReadings)
+		}
+		// n distinct phases: k/n periods apart with k prime to n.
+		k := math.Round(sp * 2 * f * float64(rd.Average))
+		if math.Abs(sp*2*f*float64(rd.Average)-k) < 1e-6 && gcd(int(k), rd.Average) != 1 {
+			t.Errorf("%g Hz: %d readings %g periods apart repeat phases", f, rd.Average, sp*2*f)
+		}
+		direct := RippleRel(f, tau) * meanOfReadings(f, rd.ApertureS, sp, rd.Average)
 		if math.Abs(direct-rd.ResidualRel) > 1e-5 || direct > target {
 			t.Errorf("%g Hz: %d readings %.4g s apart: residual %.3g predicted, %.3g integrated (target %g)", f, rd.Average, rd.SpacingS, rd.ResidualRel, direct, target)
 		}
 		b2b := RippleRel(f, tau) * meanOfReadings(f, rd.ApertureS, rd.ApertureS+m.OverheadS, rd.Average)
-		t.Logf("%g Hz: %d readings %.4g s apart: %.2g (back to back %.2g)", f, rd.Average, rd.SpacingS, direct, b2b)
+		t.Logf("%g Hz: %d readings %.4g s apart: %.2g (back to back %.2g)", f, rd.Average, sp, direct, b2b)
 	}
 }
