@@ -11,6 +11,7 @@ import (
 
 	"rolloff/driver/profile"
 	"rolloff/driver/sim"
+	"rolloff/sweep/analysis"
 	"rolloff/sweep/plan"
 	"rolloff/sweep/sched/onbench"
 )
@@ -87,6 +88,10 @@ func runPlanCmd(ctx context.Context, env *cmdEnv, args []string) error {
 	if estFlat.RefinePoints > 0 {
 		fmt.Fprintf(env.stdout, "  corner refinement:            up to %d points, about %s\n",
 			estFlat.RefinePoints, fmtDur(float64(estFlat.RefinePoints)*estSteep.PhysicalS/math.Max(1, float64(estSteep.Points))))
+	}
+	if estFlat.DriftPoints > 0 {
+		fmt.Fprintf(env.stdout, "  drift checks:                 %d at %s, about %s to %s\n",
+			estFlat.DriftPoints, analysis.FormatHz(p.ReferenceHz, 4), fmtDur(estFlat.DriftS), fmtDur(estSteep.DriftS))
 	}
 	if scale != 1 {
 		fmt.Fprintf(env.stdout, "simulated bench time scale %g: wall time %s to %s\n", scale,

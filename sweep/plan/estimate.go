@@ -26,7 +26,12 @@ type EstimateResult struct {
 	// mean time of a plan point each.
 	RefinePoints int
 	RefineS      float64
-	TotalS       float64 // PhysicalS + RefineS
+	// DriftPoints are the drift checks' re-measurements of the reference
+	// ([drift]) and DriftS their time, with the return to the plan point
+	// after each periodic one.
+	DriftPoints int
+	DriftS      float64
+	TotalS      float64 // PhysicalS + RefineS + DriftS
 	// SlowestHz is the plan point that takes longest, SlowestS its time.
 	SlowestHz float64
 	SlowestS  float64
@@ -44,23 +49,53 @@ func Estimate(p *Plan, t Timing) (EstimateResult, error) {
 	if err != nil {
 		return r, err
 	}
-	prevHz, prevVrms := 0.0, 0.0
-	for _, f := range freqs {
-		s := t.PointSeconds(prevHz, f.Hz, prevVrms, p.Level.Vrms)
+	point := func(prevHz, hz float64) (float64, error) {
+		prevVrms := p.Level.Vrms
+		if prevHz == 0 {
+			prevVrms = 0 // the output has just been switched on
+		}
+		s := t.PointSeconds(prevHz, hz, prevVrms, p.Level.Vrms)
 		if math.IsNaN(s) || math.IsInf(s, 0) || s < 0 {
-			return r, fmt.Errorf("plan: timing model gives %v s for the point at %s Hz; want a finite time ≥ 0", s, fmtFloat(f.Hz))
+			return 0, fmt.Errorf("plan: timing model gives %v s for the point at %s Hz; want a finite time ≥ 0", s, fmtFloat(hz))
+		}
+		return s, nil
+	}
+	prevHz := 0.0
+	for i, f := range freqs {
+		s, err := point(prevHz, f.Hz)
+		if err != nil {
+			return r, err
 		}
 		r.PhysicalS += s
 		if s > r.SlowestS || r.Points == 0 {
 			r.SlowestHz, r.SlowestS = f.Hz, s
 		}
 		r.Points++
-		prevHz, prevVrms = f.Hz, p.Level.Vrms
+		prevHz = f.Hz
+		if n := p.Drift.EveryPoints; n > 0 && (i+1)%n == 0 && i+1 < len(freqs) {
+			// A periodic check: to the reference and back to the next
+			// plan point, whose own time the loop counts from here.
+			d, err := point(f.Hz, p.ReferenceHz)
+			if err != nil {
+				return r, err
+			}
+			r.DriftPoints++
+			r.DriftS += d
+			prevHz = p.ReferenceHz
+		}
 	}
 	if p.Refine.Enabled {
 		r.RefinePoints = p.Refine.MaxPoints
 		r.RefineS = float64(r.RefinePoints) * r.PhysicalS / float64(r.Points)
 	}
-	r.TotalS = r.PhysicalS + r.RefineS
+	if p.Drift.End == DriftOn && len(freqs) > 0 {
+		d, err := point(prevHz, p.ReferenceHz)
+		if err != nil {
+			return r, err
+		}
+		r.DriftPoints++
+		r.DriftS += d
+	}
+	r.TotalS = r.PhysicalS + r.RefineS + r.DriftS
 	return r, nil
 }

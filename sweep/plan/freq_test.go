@@ -310,14 +310,42 @@ func TestEstimate(t *testing.T) {
 	if r.SlowestHz != 10 || r.SlowestS != 3 {
 		t.Errorf("slowest %g Hz %g s", r.SlowestHz, r.SlowestS)
 	}
-	if r.RefinePoints != 10 || math.Abs(r.TotalS-(want+10*want/7)) > 1e-9 {
-		t.Errorf("refine %+v", r)
+	// The drift check at the end (the default): one point at the
+	// reference (1 kHz) after the last plan point (1 kHz).
+	drift := 2 + 10/1000.0
+	if r.RefinePoints != 10 || r.DriftPoints != 1 || math.Abs(r.DriftS-drift) > 1e-9 || math.Abs(r.TotalS-(want+10*want/7+drift)) > 1e-9 {
+		t.Errorf("refine and drift %+v", r)
 	}
 	if tm.calls[0] != [4]float64{0, 10, 0, 0.5} || tm.calls[1][0] != 10 || tm.calls[1][2] != 0.5 {
 		t.Errorf("calls %v", tm.calls[:2])
 	}
 	if _, err := plan.Estimate(p, badTiming{}); err == nil {
 		t.Error("a NaN from the timing model was accepted")
+	}
+}
+
+// TestEstimateDriftChecks: a check after every 3 of 7 plan points and one
+// at the end are three points at the reference, each periodic one after
+// a plan point, the next plan point timed from the reference.
+func TestEstimateDriftChecks(t *testing.T) {
+	p := mustPlan(t, "reference_hz = 100\n[frequencies]\nstart_hz = 10\nstop_hz = 1000\npoints_per_decade = 3\n[level]\nvrms = 0.5\n[drift]\nevery_points = 3\n")
+	tm := &constTiming{s: 2}
+	r, err := plan.Estimate(p, tm)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.DriftPoints != p.Drift.DriftChecks(7) || r.DriftPoints != 3 {
+		t.Fatalf("%d drift points, the scheduler's count %d, want 3", r.DriftPoints, p.Drift.DriftChecks(7))
+	}
+	if len(tm.calls) != 7+3 || math.Abs(r.DriftS-3*(2+10/100.0)) > 1e-9 || math.Abs(r.TotalS-r.PhysicalS-r.DriftS) > 1e-9 {
+		t.Errorf("calls %v, estimate %+v", tm.calls, r)
+	}
+	// Plan points 10, 21.5, 46.4 Hz, then the first check.
+	if c := tm.calls[3]; math.Abs(c[0]-46.41588833612779) > 1e-9 || c[1] != 100 {
+		t.Errorf("the first check follows the third plan point: %v", c)
+	}
+	if c := tm.calls[4]; c[0] != 100 {
+		t.Errorf("the plan point after a check is timed from the reference: %v", c)
 	}
 }
 
