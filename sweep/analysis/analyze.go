@@ -259,7 +259,10 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 		}
 	}
 	level := e.ReferenceGainDB + a.o.LevelDB
-	xc := a.supported(c, crossings(c, grid, level), level, model)
+	xc := crossings(c, grid, level)
+	if !model {
+		xc = a.supported(xc, level)
+	}
 	e.Crossings = []Crossing{}
 	var lowX, highX *float64
 	for _, x := range xc {
@@ -320,72 +323,26 @@ func (a *analysis) estimate(c curve, grid []float64, model bool) estimation {
 	return e
 }
 
-// supported drops the pairs of consecutive crossings that the data do not
-// support. On the interpolant an excursion through the level (a dip below
-// it or a bump above it) is kept only when some point between the two
-// crossings lies beyond the level by more than CoverageFactor standard
-// deviations of its noise: one noisy sample dipping through the level
-// makes no corner. On a model (which passed its residual test, so its
-// ripple between the samples is as good as the model) it is kept unless
-// it lies between two adjacent samples and goes beyond both of them by
-// more than featureDB: a narrow notch of a model between two samples
-// makes no corner.
-func (a *analysis) supported(c curve, xc []float64, level float64, model bool) []float64 {
+// supported drops the pairs of consecutive crossings of the interpolant
+// that the data do not support (a model's crossings are as good as the
+// model, which passed its residual test): an excursion through the level (a dip below it or a bump above
+// it) is kept only when some point between the two crossings lies beyond
+// the level by more than CoverageFactor standard deviations of its noise.
+// One noisy sample dipping through the level, or a narrow feature of a
+// model between two samples, makes no corner.
+func (a *analysis) supported(xc []float64, level float64) []float64 {
 	if len(xc) < 2 {
 		return xc
 	}
-	keep := a.beyondLevel
-	if model {
-		keep = func(xa, xb, _ float64) bool {
-			return a.sampleWithin(xa, xb) || a.excursionDB(c, xa, xb) <= a.featureDB()
-		}
-	}
 	out := make([]float64, 0, len(xc))
 	for i := 0; i < len(xc); i++ {
-		if i+1 < len(xc) && !keep(xc[i], xc[i+1], level) {
+		if i+1 < len(xc) && !a.beyondLevel(xc[i], xc[i+1], level) {
 			i++ // drop the pair
 			continue
 		}
 		out = append(out, xc[i])
 	}
 	return out
-}
-
-// featureDB is how far beyond both neighbouring samples a model may go
-// between them before its feature there counts as unseen: the corner
-// level or half power, whichever is larger (a 1 dB ripple between two
-// samples is the model's to tell; a notch is not).
-func (a *analysis) featureDB() float64 { return math.Max(math.Abs(a.o.LevelDB), -HalfPowerDB) }
-
-// excursionDB returns how far curve c goes, between xa and xb (log10 f),
-// beyond both included samples adjacent to that span: below the lower of
-// their values on c or above the higher; 0 when it stays within.
-func (a *analysis) excursionDB(c curve, xa, xb float64) float64 {
-	i := sort.SearchFloat64s(a.xs, xa) // first sample at or above xa
-	if i == 0 || i >= len(a.xs) {
-		return 0
-	}
-	sa, sb := a.xs[i-1], a.xs[i]
-	ya, yb := c.atLog(sa), c.atLog(sb)
-	lo, hi := math.Min(ya, yb), math.Max(ya, yb)
-	var ex float64
-	n := int(math.Ceil((sb-sa)/0.002)) + 1
-	for k := 1; k < n; k++ {
-		v := c.atLog(sa + (sb-sa)*float64(k)/float64(n))
-		ex = math.Max(ex, math.Max(lo-v, v-hi))
-	}
-	return ex
-}
-
-// sampleWithin says whether an included sample lies strictly between xa
-// and xb (log10 f).
-func (a *analysis) sampleWithin(xa, xb float64) bool {
-	for _, x := range a.xs {
-		if x > xa && x < xb {
-			return true
-		}
-	}
-	return false
 }
 
 // beyondLevel says whether a point strictly between xa and xb lies beyond

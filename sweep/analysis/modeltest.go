@@ -130,22 +130,7 @@ func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope)
 	if len(cands) == 0 {
 		return nil
 	}
-	loX, hiX := a.x0, a.x1
-	if ie.LowHz != nil {
-		loX = log10(*ie.LowHz)
-	}
-	if ie.HighHz != nil {
-		hiX = log10(*ie.HighHz)
-	}
-	best, unsupported := cands[0], ""
-	for i, c := range cands {
-		if why := a.unsupportedFeature(&c.model, loX, hiX); why == "" {
-			best, unsupported = cands[i], ""
-			break
-		} else if i == 0 {
-			unsupported = why
-		}
-	}
+	best := cands[0]
 	mr := &ModelResult{Model: best.model, Description: best.model.Describe(), BIC: best.bic, FitPoints: len(d.y),
 		Sections: describeSections(best.model), NoiseDeclared: declared, NoiseDiffDB: nanToZero(diffDB)}
 	n := float64(len(d.y))
@@ -161,8 +146,6 @@ func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope)
 	}
 	lagMax := math.Max(0.5, 3/math.Sqrt(n))
 	switch {
-	case unsupported != "":
-		mr.Reason = unsupported
 	case mr.ReducedChi > a.o.ModelFactor:
 		mr.Reason = fmt.Sprintf("residual %.3g dB rms is above the noise level: reduced chi %.3g > %g", mr.ResidualRMSDB, mr.ReducedChi, a.o.ModelFactor)
 	case mr.ResidualRMSDB > a.o.NoiseFloorDB && mr.ReducedChi > 1 && mr.Lag1 > lagMax:
@@ -181,38 +164,6 @@ func (a *analysis) fit(ie Estimate, slopeLow, slopeHigh, endLow, endHigh *Slope)
 	}
 	a.cov = newCovariance(d, best, declared)
 	return mr
-}
-
-// unsupportedFeature describes the first excursion of model m inside the
-// passband (between the interpolated corners loX and hiX, log10 f; the
-// sweep's ends where there is none) between two adjacent included samples
-// that goes beyond both of them, below the lower or above the higher, by
-// more than featureDB: a notch or a peak that no sample saw. A fit over sparse points can put one in a gap at almost
-// no cost in its residual, standing in for a small step in the data (a
-// range change, a band edge of the converter's flatness), and it would
-// make corners, peaking and flatness of its own. Stop-band zeros, beyond
-// the corners, are what elliptic and inverse-Chebyshev responses have and
-// are not examined. "" when there is no such feature.
-func (a *analysis) unsupportedFeature(m *Model, loX, hiX float64) string {
-	limit := a.featureDB()
-	for i := 1; i < len(a.xs); i++ {
-		xa, xb := a.xs[i-1], a.xs[i]
-		if !(xb > xa) || xa < loX || xb > hiX {
-			continue
-		}
-		ya, yb := m.atLog(xa), m.atLog(xb)
-		lo, hi := math.Min(ya, yb), math.Max(ya, yb)
-		n := int(math.Ceil((xb-xa)/0.002)) + 1
-		for k := 1; k < n; k++ {
-			x := xa + (xb-xa)*float64(k)/float64(n)
-			v := m.atLog(x)
-			if v < lo-limit || v > hi+limit || math.IsNaN(v) {
-				return fmt.Sprintf("the model has a feature between the samples at %s and %s that no sample supports (%.3g dB at %s against %.3g to %.3g dB at the samples)",
-					FormatHz(math.Pow(10, xa), 4), FormatHz(math.Pow(10, xb), 4), v, FormatHz(math.Pow(10, x), 4), lo, hi)
-			}
-		}
-	}
-	return ""
 }
 
 // steeper returns the orders two to four above the highest of orders (none
