@@ -7,6 +7,7 @@ package hub
 import (
 	"context"
 	"errors"
+	"net"
 	"sync"
 	"time"
 
@@ -250,6 +251,24 @@ func (h *Hub) remove(c *Client, code int, reason string) {
 	h.mu.Unlock()
 }
 
+// writeFailed handles a failed write to c: one that ran out of WriteWait
+// is a client that does not keep up, dropped and counted as such (unless
+// a full queue has dropped it already); any other is a connection gone.
+func (h *Hub) writeFailed(c *Client, err error) {
+	var ne net.Error
+	if !errors.As(err, &ne) || !ne.Timeout() {
+		return
+	}
+	h.mu.Lock()
+	defer h.mu.Unlock()
+	if c.sendClosed {
+		return
+	}
+	h.dropped++
+	h.opts.Log.Warn().Str("topic", c.topic).Msg("live client dropped: too slow")
+	h.removeLocked(c, websocket.CloseTryAgainLater, reasonTooSlow)
+}
+
 // Close tells every client final (when its Data is not empty), sends a
 // close frame and waits, until ctx is done, for all connections to end.
 // Later Attach calls fail with ErrClosed.
@@ -344,6 +363,7 @@ func (c *Client) writePump() {
 				last = m.Seq
 			}
 			if err := c.write(m); err != nil {
+				h.writeFailed(c, err)
 				return
 			}
 		case from := <-c.replays:
@@ -352,6 +372,7 @@ func (c *Client) writePump() {
 			}
 		case <-ticker.C:
 			if err := c.conn.WriteControl(websocket.PingMessage, nil, time.Now().Add(h.opts.WriteWait)); err != nil {
+				h.writeFailed(c, err)
 				return
 			}
 		case <-c.done:

@@ -111,6 +111,33 @@ func TestLateJoinerMissesNothing(t *testing.T) {
 	}
 }
 
+// TestStalledWriteDropped: a client that stops reading, with a queue
+// long enough never to fill, is dropped when a write to it runs out of
+// WriteWait, and counted with the clients dropped for being too slow (a
+// loaded host makes this path the one taken: the publisher is slower
+// than the write deadline).
+func TestStalledWriteDropped(t *testing.T) {
+	h := New(Options{SendQueue: 100000, WriteWait: 200 * time.Millisecond})
+	url := testServer(t, h, nil)
+	stalled := dial(t, url)
+	_ = stalled // never read
+	waitClients(t, h, 1)
+	payload := strings.Repeat("x", 64<<10)
+	deadline := time.Now().Add(20 * time.Second)
+	for i := 0; h.Clients("t") > 0; i++ {
+		if time.Now().After(deadline) {
+			t.Fatalf("after %d messages of 64 KiB the stalled client is still attached", i)
+		}
+		if i < 2000 { // 125 MiB, beyond any socket buffer
+			h.Publish("t", NewMessage([]byte(`{"type":"log","message":"`+payload+`"}`), NoSeq))
+		}
+		time.Sleep(time.Millisecond)
+	}
+	if d := h.Dropped(); d != 1 {
+		t.Errorf("dropped = %d, want 1: a write past its deadline is a client too slow", d)
+	}
+}
+
 // A client that stops reading is dropped; Publish never waits for it and
 // the clients that keep up receive everything.
 func TestSlowClientDropped(t *testing.T) {
