@@ -194,6 +194,17 @@ func (b *budgetInputs) perturbed(xc float64, d []float64) (float64, bool) {
 	return xc, false
 }
 
+// groupShift returns the change of ln fc of corner side, through the fit
+// (b.shift), when group g's error is one unit: each of its samples moves
+// by its coefficient. d is scratch space, one per sample.
+func (b *budgetInputs) groupShift(side int, g group, d []float64) float64 {
+	clear(d)
+	for k, i := range g.idx {
+		d[i] = g.val[k]
+	}
+	return b.shift(side, d)
+}
+
 // sensitivity returns ∂fc/∂e (Hz per unit of the group's error) at the
 // corner of side (0 low, 1 high): through the fit for a model (linear);
 // for an interpolant, as the central difference of the perturbed corner over
@@ -212,10 +223,7 @@ func (b *budgetInputs) sensitivity(side int, g group) float64 {
 	}
 	d := make([]float64, len(b.xs))
 	if b.shift != nil {
-		for k, i := range g.idx {
-			d[i] = g.val[k]
-		}
-		return math.Pow(10, xc) * b.shift(side, d)
+		return math.Pow(10, xc) * b.groupShift(side, g, d)
 	}
 	for try := 0; try < 11; try++ {
 		for k := range d {

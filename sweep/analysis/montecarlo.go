@@ -132,16 +132,10 @@ func (r *Result) RunMonteCarlo(n int, seed uint64) (*MonteCarlo, error) {
 		for _, c := range b.comps {
 			var cl [][2]float64
 			for _, g := range c.groups {
-				for i := range d {
-					d[i] = 0
-				}
-				for k, i := range g.idx {
-					d[i] = g.val[k]
-				}
 				var co [2]float64
 				for side := 0; side < 2; side++ {
 					if b.corners[side] != nil {
-						co[side] = b.shift(side, d)
+						co[side] = b.groupShift(side, g, d)
 					}
 				}
 				cl = append(cl, co)
@@ -150,43 +144,25 @@ func (r *Result) RunMonteCarlo(n int, seed uint64) (*MonteCarlo, error) {
 		}
 	}
 	for t := 0; t < n; t++ {
-		if lin != nil {
-			var sh [2]float64
-			for ci, c := range b.comps {
-				for gi, g := range c.groups {
-					e := draw(rng, g.dist, g.a)
-					sh[0] += lin[ci][gi][0] * e
-					sh[1] += lin[ci][gi][1] * e
-				}
-				for side := 0; side < 2; side++ {
-					if c.direct[side] > 0 {
-						sh[side] += rng.NormFloat64() * c.direct[side]
-					}
-				}
-			}
-			for side := 0; side < 2; side++ {
-				if b.corners[side] != nil && !math.IsNaN(sh[side]) {
-					draws[side] = append(draws[side], math.Pow(10, *b.corners[side])*math.Exp(sh[side]))
-				} else if b.corners[side] != nil {
-					lost[side]++
-				}
-			}
-			continue
-		}
-		for i := range d {
-			d[i] = 0
-		}
-		var direct [2]float64
-		for _, c := range b.comps {
-			for _, g := range c.groups {
+		clear(d)
+		// acc is the drawn shift of ln fc: the direct inputs, and through
+		// a fitted model every input.
+		var acc [2]float64
+		for ci, c := range b.comps {
+			for gi, g := range c.groups {
 				e := draw(rng, g.dist, g.a)
+				if lin != nil {
+					acc[0] += lin[ci][gi][0] * e
+					acc[1] += lin[ci][gi][1] * e
+					continue
+				}
 				for k, i := range g.idx {
 					d[i] += g.val[k] * e
 				}
 			}
 			for side := 0; side < 2; side++ {
 				if c.direct[side] > 0 {
-					direct[side] += rng.NormFloat64() * c.direct[side]
+					acc[side] += rng.NormFloat64() * c.direct[side]
 				}
 			}
 		}
@@ -194,12 +170,15 @@ func (r *Result) RunMonteCarlo(n int, seed uint64) (*MonteCarlo, error) {
 			if b.corners[side] == nil {
 				continue
 			}
-			x, ok := b.perturbed(*b.corners[side], d)
+			x, ok := *b.corners[side], !math.IsNaN(acc[side])
+			if lin == nil {
+				x, ok = b.perturbed(x, d)
+			}
 			if !ok {
 				lost[side]++
 				continue
 			}
-			draws[side] = append(draws[side], math.Pow(10, x)*math.Exp(direct[side]))
+			draws[side] = append(draws[side], math.Pow(10, x)*math.Exp(acc[side]))
 		}
 	}
 	mc := &MonteCarlo{Seed: seed}
