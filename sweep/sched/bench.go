@@ -160,14 +160,11 @@ func (s *sweeper) singles(ctx context.Context, n int, what string, read func(con
 		}
 		ts, vs = append(ts, tS), append(vs, v)
 	}
-	if n < settle.MinFitReadings || !s.bench.freqSet {
-		var sum float64
-		for _, v := range vs {
-			sum += v
-		}
-		return sum / float64(n), nil
+	rippleHz := 0.0 // unknown: FitMean returns the mean
+	if s.bench.freqSet {
+		rippleHz = 2 * s.bench.freqHz
 	}
-	v, _ := settle.FitMean(ts, vs, 2*s.bench.freqHz, settle.FitHarmonics)
+	v, _ := settle.FitMean(ts, vs, rippleHz, settle.FitHarmonics)
 	return v, nil
 }
 

@@ -68,10 +68,10 @@ func FitMean(tS, v []float64, rippleHz float64, harmonics int) (c0 float64, ok b
 	if g := inv.At(0, 0) * float64(n); !(g <= maxFitGain*maxFitGain) {
 		return mean, false
 	}
-	var x mat.VecDense
-	if err := x.SolveVec(a, mat.NewVecDense(n, append([]float64(nil), v...))); err != nil {
-		return mean, false
-	}
+	// c0 = [(AᵀA)⁻¹ Aᵀ v]₀, the normal equations' solution.
+	var atv, x mat.VecDense
+	atv.MulVec(a.T(), mat.NewVecDense(n, v))
+	x.MulVec(&inv, &atv)
 	c := x.AtVec(0)
 	if math.IsNaN(c) || math.IsInf(c, 0) {
 		return mean, false
