@@ -206,9 +206,8 @@ func (h *Hub) Publish(topic string, m Message) {
 		select {
 		case c.send <- m:
 		default:
-			h.dropped++
 			h.opts.Log.Warn().Str("topic", topic).Msg("live client dropped: too slow")
-			h.removeLocked(c, websocket.CloseTryAgainLater, reasonTooSlow)
+			h.dropLocked(c)
 		}
 	}
 }
@@ -224,8 +223,7 @@ func (h *Hub) sendTo(c *Client, m Message) {
 	select {
 	case c.send <- prepare(m):
 	default:
-		h.dropped++
-		h.removeLocked(c, websocket.CloseTryAgainLater, reasonTooSlow)
+		h.dropLocked(c)
 	}
 }
 
@@ -264,8 +262,13 @@ func (h *Hub) writeFailed(c *Client, err error) {
 	if c.sendClosed {
 		return
 	}
-	h.dropped++
 	h.opts.Log.Warn().Str("topic", c.topic).Msg("live client dropped: too slow")
+	h.dropLocked(c)
+}
+
+// dropLocked counts c as too slow and removes it. h.mu must be held.
+func (h *Hub) dropLocked(c *Client) {
+	h.dropped++
 	h.removeLocked(c, websocket.CloseTryAgainLater, reasonTooSlow)
 }
 
