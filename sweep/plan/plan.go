@@ -86,7 +86,19 @@ type Settle struct {
 	// TimeoutS is the most time spent on one point before it is recorded
 	// and flagged unsettled.
 	TimeoutS float64 `toml:"timeout_s" json:"timeout_s"`
+	// Predict, unless false, lets a point end before the converter has
+	// settled, on the settled value its approach predicts (a first-order
+	// approach fitted to the readings, with its uncertainty inside the
+	// tolerance and one more reading agreeing with it); where the
+	// approach is not one exponential the point waits as without it and
+	// its record says why. Nil means off until the prediction is proven
+	// on the held-out benches.
+	Predict *bool `toml:"predict" json:"predict,omitempty"`
 }
+
+// Predicting reports whether the settle policy predicts settled values
+// (see Settle.Predict).
+func (s Settle) Predicting() bool { return s.Predict != nil && *s.Predict }
 
 // Ranging is the converter range strategy.
 type Ranging struct {

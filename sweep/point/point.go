@@ -50,9 +50,18 @@ type Point struct {
 	// model gives from its state before the step, with its time constant
 	// taken 20 % longer than stated, capped at the settle tolerance. Nil
 	// where no model was known (the tolerance bounds it).
-	SettleResidualRel *float64  `json:"settle_residual_rel,omitempty"`
-	Flags             []string  `json:"flags,omitempty"`
-	Time              time.Time `json:"time"`
+	SettleResidualRel *float64 `json:"settle_residual_rel,omitempty"`
+	// Settle is how the point's value was had where the plan predicts
+	// settled values: "predicted" from the converter's approach, or
+	// "waited" for it to settle, SettleWhy then saying why the prediction
+	// was given up. Empty where no prediction was tried.
+	Settle    string `json:"settle,omitempty"`
+	SettleWhy string `json:"settle_why,omitempty"`
+	// TauS is the converter's time constant the predicted approach
+	// showed, physical seconds (0: not predicted).
+	TauS  float64   `json:"tau_s,omitempty"`
+	Flags []string  `json:"flags,omitempty"`
+	Time  time.Time `json:"time"`
 }
 
 // Has reports whether p carries flag f.

@@ -26,6 +26,9 @@ func (s *sweeper) tau() float64 {
 	if s.inst.Converter == nil || !s.bench.rangeKnown {
 		return 0
 	}
+	if e, ok := s.taus.estimate(s.bench.rangeIdx); ok && e.Confident() {
+		return e.TauS // the range's, as its approaches showed it
+	}
 	return s.ranges()[s.bench.rangeIdx].TimeConstantS
 }
 

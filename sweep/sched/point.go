@@ -65,6 +65,8 @@ type pointRun struct {
 	holdChecked bool
 	clipped     bool // a reading overloaded the voltmeter
 	over        bool // a reading was over range
+
+	ap *approachRun // the prediction of the settled value (nil: none tried)
 }
 
 // reaction is what the read loop does after a reading.
@@ -214,6 +216,10 @@ func (p *pointRun) planDwell(ctx context.Context) error {
 	readS := s.bench.reading.TimeS(s.meter())
 	s.pred.refining = p.predGain > 0
 	nb, probe := s.holdGuard(p.tStep, p.dwell, p.v1, p.predicted && !p.weak)
+	// The hold guard waits beyond the dwell where a hold that began
+	// before the step could still freeze the output: no reading before
+	// then can be trusted, predicted or not.
+	holdWait := nb > p.dwell
 	winS := float64(max(2, s.plan.Settle.Readings)) * readS
 	if end := s.holdAhead(p.tStep+nb, p.tStep+nb+winS); end > 0 {
 		// A hold of the learnt schedule would cover the window.
@@ -241,7 +247,11 @@ func (p *pointRun) planDwell(ctx context.Context) error {
 		wake = math.Min(wake, math.Max(0, s.scoutAtS(tau)-s.singleS()))
 	}
 	p.probe = probe
-	if err := s.observeDwell(ctx, p.tStep, p.tStep+wake, p.y0, p.v1, p.predicted); err != nil {
+	if w := p.startApproach(wake, holdWait); p.ap != nil {
+		// Reading the approach from the start: no probe, and the hold is
+		// caught by the fit's checks instead of a dwell's readings.
+		wake, p.probe = w, -1
+	} else if err := s.observeDwell(ctx, p.tStep, p.tStep+wake, p.y0, p.v1, p.predicted); err != nil {
 		return err
 	}
 	if err := r.sleepUntil(ctx, p.tStep+wake); err != nil {
@@ -284,7 +294,9 @@ func (p *pointRun) read(ctx context.Context) (again bool, err error) {
 		}
 		ts := (t0+t1)/2 - p.tStep
 		var next reaction
-		if p.last.Status == driver.OverRange {
+		if p.ap.active() {
+			next, err = p.approachReading(ctx, ts, t1-t0, v, t1)
+		} else if p.last.Status == driver.OverRange {
 			next, err = p.overRange(ctx, ts, v)
 		} else {
 			p.dcOf[ts] = v
@@ -537,7 +549,16 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 		Bool("predicted", p.predicted).Float64("tau_s", p.tau).Msg("point timing")
 	win := p.cv.Window()
 	var mean, stdRel, dcMean, settleS float64
-	if len(win) > 0 {
+	predicted := p.ap != nil && p.ap.ok
+	nReadings := len(win)
+	if predicted {
+		f := p.ap.fit
+		mean, stdRel = math.Sqrt(f.MInf), f.UMInf/(2*f.MInf)
+		w := s.inst.Converter.Window()
+		dcMean = mean / s.ranges()[s.bench.rangeIdx].FullScaleVrms * w.DCFullScaleV
+		settleS = p.ap.tS[len(p.ap.tS)-1]
+		nReadings = len(p.ap.tS)
+	} else if len(win) > 0 {
 		mean, stdRel = settle.Stats(win)
 		for _, smp := range win {
 			dcMean += p.dcOf[smp.TS]
@@ -565,7 +586,7 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 		VoutVrms: mean,
 		GainDB:   20 * math.Log10(mean/vin),
 		DCVolts:  dcMean,
-		Readings: len(win),
+		Readings: nReadings,
 		StdRel:   stdRel,
 		SettleS:  settleS,
 		Time:     r.clock.Now(),
@@ -573,9 +594,15 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 	if s.inst.Converter != nil {
 		pt.RippleRel = s.bench.reading.ResidualRel
 	}
-	if r, ok := p.settleResidual(win, mean); ok {
+	if predicted {
+		// What the prediction leaves: its expanded uncertainty.
+		r := math.Min(p.tol, 2*stdRel)
+		pt.SettleResidualRel = &r
+		pt.TauS = p.ap.fit.TauS
+	} else if r, ok := p.settleResidual(win, mean); ok {
 		pt.SettleResidualRel = &r
 	}
+	pt.Settle, pt.SettleWhy = p.approachNote()
 	if p.refined {
 		pt.Flags = append(pt.Flags, point.FlagRefined)
 	}
@@ -587,7 +614,7 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 			return pt, again, err
 		}
 	}
-	if !p.cv.Converged() && !p.over {
+	if !p.cv.Converged() && !p.over && !predicted {
 		pt.Flags = append(pt.Flags, point.FlagUnsettled)
 	}
 	return pt, false, nil
@@ -686,9 +713,14 @@ func (p *pointRun) learn(pt point.Point) {
 	if !(mean > 0) || !s.bench.outputOn {
 		return
 	}
-	// The converter model now starts from what was measured.
-	s.conv.rest(p.r.phys(), mean*mean)
-	s.conv.altOn = false
+	predicted := p.ap != nil && p.ap.ok
+	if predicted {
+		p.learnApproach()
+	} else {
+		// The converter model now starts from what was measured.
+		s.conv.rest(p.r.phys(), mean*mean)
+		s.conv.altOn = false
+	}
 	if pt.Excluded() {
 		return
 	}
@@ -697,7 +729,7 @@ func (p *pointRun) learn(pt point.Point) {
 	}
 	s.pred.gain.Add(p.freqHz, mean/s.bench.ampVrms)
 	s.pred.scoutGain = 0
-	if pt.Readings >= 2 {
+	if pt.Readings >= 2 && !predicted {
 		s.pred.noteNoise(pt.StdRel * math.Sqrt(float64(pt.Readings)))
 	}
 }

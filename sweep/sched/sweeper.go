@@ -20,6 +20,7 @@ type sweeper struct {
 	conv  convModel    // the converter's averaged state
 	hold  holdSchedule // the converter's output hold as seen so far
 	pred  predictor    // the gain predictor and its error history
+	taus  tauBook      // the converter's time constants as its approaches show them
 	prog  progress     // the points measured and their timing
 }
 
@@ -66,6 +67,13 @@ type predictor struct {
 	// noise is the readings' relative scatter (per reading), from the
 	// last points' Type A deviations.
 	noise []float64
+	// fitNoise is the readings' scatter as the last predicted approaches
+	// on each converter range showed it in their residuals, a fraction
+	// of the range's full scale (the noise of a converter and of its
+	// voltmeter is in volts, not relative): readings taken while the
+	// converter still moves spread by the motion, which their deviation
+	// counts as noise and a fit does not.
+	fitNoise map[int][]float64
 }
 
 // predHistory is the number of points the error and noise histories keep.
