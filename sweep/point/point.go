@@ -20,6 +20,13 @@ const (
 	FlagDriftCheck = "drift-check"
 )
 
+// Settle modes a point's record carries (Point.Settle) where the plan
+// predicts settled values.
+const (
+	SettlePredicted = "predicted" // ended on the value its approach predicts
+	SettleWaited    = "waited"    // the prediction was given up: waited to settle
+)
+
 // Point is one measured frequency point.
 type Point struct {
 	Seq      int     `json:"seq"`   // 0-based order of measurement in the run
@@ -52,9 +59,9 @@ type Point struct {
 	// where no model was known (the tolerance bounds it).
 	SettleResidualRel *float64 `json:"settle_residual_rel,omitempty"`
 	// Settle is how the point's value was had where the plan predicts
-	// settled values: "predicted" from the converter's approach, or
-	// "waited" for it to settle, SettleWhy then saying why the prediction
-	// was given up. Empty where no prediction was tried.
+	// settled values: SettlePredicted from the converter's approach, or
+	// SettleWaited for it to settle, SettleWhy then saying why the
+	// prediction was given up. Empty where no prediction was tried.
 	Settle    string `json:"settle,omitempty"`
 	SettleWhy string `json:"settle_why,omitempty"`
 	// TauS is the converter's time constant the predicted approach

@@ -7,6 +7,7 @@ import (
 
 	"rolloff/driver"
 	"rolloff/sweep/analysis"
+	"rolloff/sweep/point"
 	"rolloff/sweep/settle"
 )
 
@@ -39,12 +40,6 @@ import (
 // expanded uncertainty (k = 2) must be within.
 const predictTolFrac = 0.25
 
-// Settle modes a point's record carries (point.Point.Settle).
-const (
-	settlePredicted = "predicted"
-	settleWaited    = "waited"
-)
-
 // approachRun is one point's prediction.
 type approachRun struct {
 	tS, mMS, sig []float64 // the usable readings: s after the step, Vrms², σ of each (Vrms²)
@@ -59,6 +54,9 @@ type approachRun struct {
 
 // active reports whether the prediction is still being tried.
 func (a *approachRun) active() bool { return a != nil && !a.ok && a.why == "" }
+
+// accepted reports whether the point ends on the prediction.
+func (a *approachRun) accepted() bool { return a != nil && a.ok }
 
 // canPredict reports whether the point may try a prediction: the plan
 // allows it, the converter's DC output is read, its time constant is
@@ -176,7 +174,7 @@ func (p *pointRun) judgeApproach() (next reaction, done bool) {
 	}
 	o := a.opts
 	// The trajectory of all but the last reading, and the last against it.
-	f1, _, err := a.fitTimed(n - 1)
+	f1, err := a.fitTimed(n - 1)
 	if err != nil {
 		return readMore, false
 	}
@@ -188,7 +186,7 @@ func (p *pointRun) judgeApproach() (next reaction, done bool) {
 			return readMore, false
 		}
 	}
-	f, _, err := a.fitTimed(n)
+	f, err := a.fitTimed(n)
 	if err != nil || !(f.MInf > 0) {
 		return readMore, false
 	}
@@ -237,17 +235,16 @@ func (p *pointRun) judgeApproach() (next reaction, done bool) {
 // the uncertainty of their times makes of the approach's slope
 // (effective variance, common practice for errors in both variables):
 // a first fit gives the slope, a second the answer.
-func (a *approachRun) fitTimed(n int) (settle.ApproachFit, []float64, error) {
+func (a *approachRun) fitTimed(n int) (settle.ApproachFit, error) {
 	f, err := settle.FitApproach(a.tS[:n], a.mMS[:n], a.sig[:n], a.opts)
 	if err != nil {
-		return f, nil, err
+		return f, err
 	}
 	sig := make([]float64, n)
 	for i := range sig {
 		sig[i] = a.effSigma(f, i)
 	}
-	g, err := settle.FitApproach(a.tS[:n], a.mMS[:n], sig, a.opts)
-	return g, sig, err
+	return settle.FitApproach(a.tS[:n], a.mMS[:n], sig, a.opts)
 }
 
 // effSigma returns reading i's deviation with its time's uncertainty
@@ -280,9 +277,9 @@ func (p *pointRun) approachNote() (mode, why string) {
 	case p.ap == nil:
 		return "", ""
 	case p.ap.ok:
-		return settlePredicted, ""
+		return point.SettlePredicted, ""
 	default:
-		return settleWaited, p.ap.why
+		return point.SettleWaited, p.ap.why
 	}
 }
 

@@ -549,7 +549,7 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 		Bool("predicted", p.predicted).Float64("tau_s", p.tau).Msg("point timing")
 	win := p.cv.Window()
 	var mean, stdRel, dcMean, settleS float64
-	predicted := p.ap != nil && p.ap.ok
+	predicted := p.ap.accepted()
 	nReadings := len(win)
 	if predicted {
 		f := p.ap.fit
@@ -713,7 +713,7 @@ func (p *pointRun) learn(pt point.Point) {
 	if !(mean > 0) || !s.bench.outputOn {
 		return
 	}
-	predicted := p.ap != nil && p.ap.ok
+	predicted := p.ap.accepted()
 	if predicted {
 		p.learnApproach()
 	} else {

@@ -3,6 +3,8 @@ package sched_test
 import (
 	"math"
 	"testing"
+
+	"rolloff/sweep/point"
 )
 
 // TestPredictedPointsOnSimBench runs the demo plan's roll-off decade on
@@ -25,7 +27,7 @@ func TestPredictedPointsOnSimBench(t *testing.T) {
 	for _, pt := range res.points {
 		e := math.Pow(10, (pt.GainDB-res.settledDB(pt.FreqHz, pt.RangeIndex, p.Level.Vrms))/20) - 1
 		t.Logf("%8.4g Hz %-9s %5.3f s %2d readings error %+.3f tol %s", pt.FreqHz, pt.Settle, pt.SettleS, pt.Readings, e/tol, pt.SettleWhy)
-		if pt.Settle != "predicted" {
+		if pt.Settle != point.SettlePredicted {
 			continue
 		}
 		predicted++

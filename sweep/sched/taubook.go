@@ -5,19 +5,19 @@ import (
 	"math"
 )
 
-// TauEstimate is what the approaches seen on one converter range say of
+// tauEstimate is what the approaches seen on one converter range say of
 // its time constant: the weighted mean of the fitted time constants,
 // physical seconds, its standard uncertainty and how many approaches it
 // rests on.
-type TauEstimate struct {
-	TauS  float64 `json:"tau_s"`
-	UTauS float64 `json:"u_tau_s"`
-	N     int     `json:"approaches"`
+type tauEstimate struct {
+	TauS  float64
+	UTauS float64
+	N     int
 }
 
 // Confident reports whether the estimate is good enough to replace the
 // profile's time constant: two approaches at least, known to 5 %.
-func (e TauEstimate) Confident() bool {
+func (e tauEstimate) Confident() bool {
 	return e.N >= 2 && e.TauS > 0 && e.UTauS <= tauConfidentRel*e.TauS
 }
 
@@ -30,10 +30,8 @@ const (
 )
 
 // tauBook learns the converter's time constant per range from the
-// approaches fitted during the run (see settle.FitApproach), starting
-// from what earlier runs on the bench learnt.
+// approaches fitted during the run (see settle.FitApproach).
 type tauBook struct {
-	prior    map[int]TauEstimate // from earlier runs
 	fits     map[int][]tauFit
 	reported map[int]bool
 }
@@ -57,63 +55,35 @@ func (b *tauBook) add(rng int, tauS, uS float64) {
 }
 
 // estimate returns what is known of range rng's time constant: the
-// weighted mean of this run's fits (and of an earlier run's estimate),
-// its uncertainty widened by the fits' scatter when that exceeds what
+// weighted mean of this run's fits, its uncertainty widened by the fits' scatter when that exceeds what
 // their uncertainties explain (the Birge ratio, common practice); ok is
 // false when nothing is known.
-func (b *tauBook) estimate(rng int) (TauEstimate, bool) {
+func (b *tauBook) estimate(rng int) (tauEstimate, bool) {
+	fits := b.fits[rng]
+	if len(fits) == 0 {
+		return tauEstimate{}, false
+	}
 	var sw, swx float64
-	var xs, ws []float64
-	n := 0
-	if p, ok := b.prior[rng]; ok && p.TauS > 0 && p.UTauS > 0 {
-		w := 1 / (p.UTauS * p.UTauS)
-		xs, ws = append(xs, p.TauS), append(ws, w)
-		n += p.N
-	}
-	for _, f := range b.fits[rng] {
-		xs, ws = append(xs, f.tauS), append(ws, 1/(f.uS*f.uS))
-		n++
-	}
-	if len(xs) == 0 {
-		return TauEstimate{}, false
-	}
-	for i := range xs {
-		sw += ws[i]
-		swx += ws[i] * xs[i]
+	for _, f := range fits {
+		w := 1 / (f.uS * f.uS)
+		sw += w
+		swx += w * f.tauS
 	}
 	m := swx / sw
 	u := 1 / math.Sqrt(sw)
-	if len(xs) > 1 {
+	if len(fits) > 1 {
 		var chi2 float64
-		for i := range xs {
-			chi2 += ws[i] * (xs[i] - m) * (xs[i] - m)
+		for _, f := range fits {
+			chi2 += (f.tauS - m) * (f.tauS - m) / (f.uS * f.uS)
 		}
-		if r := chi2 / float64(len(xs)-1); r > 1 {
+		if r := chi2 / float64(len(fits)-1); r > 1 {
 			u *= math.Sqrt(r)
 		}
 	}
-	return TauEstimate{TauS: m, UTauS: u, N: n}, true
+	return tauEstimate{TauS: m, UTauS: u, N: len(fits)}, true
 }
 
-// Estimates returns every range's estimate, for keeping with the bench.
-func (b *tauBook) estimates() map[int]TauEstimate {
-	out := map[int]TauEstimate{}
-	keys := map[int]bool{}
-	for k := range b.prior {
-		keys[k] = true
-	}
-	for k := range b.fits {
-		keys[k] = true
-	}
-	for k := range keys {
-		if e, ok := b.estimate(k); ok {
-			out[k] = e
-		}
-	}
-	return out
-}
-
-// prior returns the time constant an approach fit on range rng starts
+// priorFor returns the time constant an approach fit on range rng starts
 // from and its standard uncertainty: the learnt estimate when confident,
 // else the profile's tauS taken as known to tauProfileRel.
 func (b *tauBook) priorFor(rng int, profileS float64) (tauS, uS float64) {

@@ -3,6 +3,8 @@ package settle
 import (
 	"errors"
 	"math"
+
+	"gonum.org/v1/gonum/mat"
 )
 
 // Prediction of a converter's settled value from its approach.
@@ -80,10 +82,7 @@ var ErrFewReadings = errors.New("settle: too few readings for an approach fit")
 // tau: 1, e^(−t/τ), then cos and sin of each ripple harmonic.
 func (o ApproachOpts) basis(g []float64, t, tau float64) {
 	g[0], g[1] = 1, math.Exp(-t/tau)
-	for h := 1; h <= o.harmonics(); h++ {
-		sn, cs := math.Sincos(2 * math.Pi * float64(h) * o.RippleHz * t)
-		g[2*h], g[2*h+1] = cs, sn
-	}
+	harmonicTerms(g[2:2+2*o.harmonics()], 2*math.Pi*o.RippleHz*t)
 }
 
 func (o ApproachOpts) harmonics() int {
@@ -332,9 +331,10 @@ func goldenMin(f func(float64) float64, a, b, tol float64) float64 {
 	return (a + b) / 2
 }
 
-// invertSym inverts a symmetric positive semi-definite matrix: scaled
-// to a unit diagonal, then Gauss-Jordan elimination with partial
-// pivoting; ok is false when it is singular to working precision.
+// invertSym inverts a symmetric positive semi-definite matrix, scaled to
+// a unit diagonal first, by Cholesky factorisation; ok is false when it
+// is not positive definite or singular to working precision (reciprocal
+// condition under 1e-13).
 func invertSym(m [][]float64) (inv [][]float64, ok bool) {
 	n := len(m)
 	d := make([]float64, n)
@@ -344,44 +344,25 @@ func invertSym(m [][]float64) (inv [][]float64, ok bool) {
 		}
 		d[r] = 1 / math.Sqrt(m[r][r])
 	}
-	a := make([][]float64, n)
+	a := mat.NewSymDense(n, nil)
 	for r := 0; r < n; r++ {
-		a[r] = make([]float64, 2*n)
-		for c := 0; c < n; c++ {
-			a[r][c] = m[r][c] * d[r] * d[c]
+		for c := r; c < n; c++ {
+			a.SetSym(r, c, m[r][c]*d[r]*d[c])
 		}
-		a[r][n+r] = 1
 	}
-	for c := 0; c < n; c++ {
-		p := c
-		for r := c + 1; r < n; r++ {
-			if math.Abs(a[r][c]) > math.Abs(a[p][c]) {
-				p = r
-			}
-		}
-		if math.Abs(a[p][c]) <= 1e-13 {
-			return nil, false
-		}
-		a[c], a[p] = a[p], a[c]
-		piv := a[c][c]
-		for k := 0; k < 2*n; k++ {
-			a[c][k] /= piv
-		}
-		for r := 0; r < n; r++ {
-			if r == c {
-				continue
-			}
-			fct := a[r][c]
-			for k := 0; k < 2*n; k++ {
-				a[r][k] -= fct * a[c][k]
-			}
-		}
+	var chol mat.Cholesky
+	if !chol.Factorize(a) || !(chol.Cond() < 1e13) {
+		return nil, false
+	}
+	var ai mat.SymDense
+	if err := chol.InverseTo(&ai); err != nil {
+		return nil, false
 	}
 	inv = make([][]float64, n)
 	for r := 0; r < n; r++ {
 		inv[r] = make([]float64, n)
 		for c := 0; c < n; c++ {
-			inv[r][c] = a[r][n+c] * d[r] * d[c]
+			inv[r][c] = ai.At(r, c) * d[r] * d[c]
 		}
 	}
 	return inv, true

@@ -51,12 +51,9 @@ func FitMean(tS, v []float64, rippleHz float64, harmonics int) (c0 float64, ok b
 	}
 	a := mat.NewDense(n, p, nil)
 	for i, t := range tS {
-		a.Set(i, 0, 1)
-		for h := 1; h <= harmonics; h++ {
-			x := 2 * math.Pi * float64(h) * rippleHz * (t - tS[0])
-			a.Set(i, 2*h-1, math.Cos(x))
-			a.Set(i, 2*h, math.Sin(x))
-		}
+		row := a.RawRowView(i)
+		row[0] = 1
+		harmonicTerms(row[1:], 2*math.Pi*rippleHz*(t-tS[0]))
 	}
 	var ata mat.SymDense
 	ata.SymOuterK(1, a.T())
@@ -77,4 +74,14 @@ func FitMean(tS, v []float64, rippleHz float64, harmonics int) (c0 float64, ok b
 		return mean, false
 	}
 	return c, true
+}
+
+// harmonicTerms writes cos(h·x) and sin(h·x) for h = 1…len(dst)/2 into
+// dst, in that order by pairs: the ripple columns of a known-frequency
+// sine fit at the phase x of the fundamental.
+func harmonicTerms(dst []float64, x float64) {
+	for h := 1; 2*h <= len(dst); h++ {
+		hx := float64(h) * x
+		dst[2*h-2], dst[2*h-1] = math.Cos(hx), math.Sin(hx)
+	}
 }
