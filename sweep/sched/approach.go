@@ -40,6 +40,11 @@ import (
 // expanded uncertainty (k = 2) must be within.
 const predictTolFrac = 0.25
 
+// deadlineTolFrac is the share of the settle tolerance the prediction's
+// expanded uncertainty may take when waiting would end the point anyway
+// (on a reading only known to within the tolerance).
+const deadlineTolFrac = 0.5
+
 // approachRun is one point's prediction.
 type approachRun struct {
 	tS, mMS, sig []float64 // the usable readings: s after the step, Vrms², σ of each (Vrms²)
@@ -50,6 +55,10 @@ type approachRun struct {
 	why          string // why it was given up ("" while on)
 	opts         settle.ApproachOpts
 	deadlineS    float64 // s after the step: the prediction is given up by then
+	// good is set while the last fit passed every check but perhaps the
+	// uncertainty's, uRel its relative standard uncertainty on the Vrms.
+	good bool
+	uRel float64
 }
 
 // active reports whether the prediction is still being tried.
@@ -68,17 +77,23 @@ func (p *pointRun) canPredict() bool {
 		p.tau > 0 && !p.alt && !p.scout && !p.discriminate && p.predicted
 }
 
-// startApproach starts the prediction when the point may try one, the
-// hold guard does not make it wait anyway (holdWait) and waiting would
-// take a while: it returns the time (s after the step) to start reading
-// at.
+// startApproach starts the prediction when the point may try one: it
+// returns the time (s after the step) to start reading at, the settle
+// dwell's minimum or, where the hold guard makes the point wait beyond
+// the dwell (holdWait), the guard's end.
 func (p *pointRun) startApproach(wake float64, holdWait bool) float64 {
-	if !p.canPredict() || holdWait {
+	if !p.canPredict() {
 		return wake
 	}
 	s := p.s
 	readS := s.bench.reading.TimeS(s.meter())
 	start := s.plan.Settle.MinDwellS
+	if holdWait {
+		// No reading is trusted before the hold guard's end; the
+		// approach goes on behind a held output, so the readings after
+		// it still lie on it.
+		start = math.Max(start, p.crit.NotBeforeS)
+	}
 	rng := s.bench.rangeIdx
 	prior, u := s.taus.priorFor(rng, s.ranges()[rng].TimeConstantS)
 	a := &approachRun{opts: settle.ApproachOpts{TauS: prior, UTauS: u, NoiseFromResiduals: len(s.pred.fitNoise[rng]) == 0}}
@@ -154,6 +169,13 @@ func (p *pointRun) approachReading(ctx context.Context, ts, spanS, v, t1 float64
 		return p.giveUp(ctx, "")
 	}
 	if ts+readS >= a.deadlineS || t1-p.tStep > p.timeout {
+		// Waiting would end now on a reading within the tolerance; a
+		// prediction that passed every check and is known to a fraction
+		// of it is the better value.
+		if a.good && 2*a.uRel <= deadlineTolFrac*p.tol {
+			a.ok = true
+			return stopRead, nil
+		}
 		why := "waiting reads as soon as the prediction could end"
 		if f := a.fit; f.MInf > 0 {
 			why = fmt.Sprintf("%s (its expanded uncertainty was %.2g %% with %d readings)", why, 100*f.UMInf/f.MInf, len(a.tS))
@@ -168,6 +190,7 @@ func (p *pointRun) approachReading(ctx context.Context, ts, spanS, v, t1 float64
 // up (next then says what to do).
 func (p *pointRun) judgeApproach() (next reaction, done bool) {
 	a := p.ap
+	a.good = false
 	n := len(a.tS)
 	if n < 3 || (a.opts.NoiseFromResiduals && n < noiseReadings) {
 		return readMore, false
@@ -217,14 +240,17 @@ func (p *pointRun) judgeApproach() (next reaction, done bool) {
 		a.why = "the readings do not move as the step needs (output hold)"
 		return readMore, false
 	}
-	uRel := f.UMInf / (2 * f.MInf)
-	if !lastOK || n < predictMinReadings || 2*uRel > predictTolFrac*p.tol {
+	if !lastOK || n < predictMinReadings {
 		return readMore, false
 	}
 	w := p.s.inst.Converter.Window()
 	fs := p.s.ranges()[p.s.bench.rangeIdx].FullScaleVrms
 	if frac := math.Sqrt(f.MInf) / fs; frac < w.UnderFraction || frac > w.OverFraction {
 		a.why = "the predicted value is outside the converter's window"
+		return readMore, false
+	}
+	a.good, a.uRel = true, f.UMInf/(2*f.MInf)
+	if 2*a.uRel > predictTolFrac*p.tol {
 		return readMore, false
 	}
 	a.ok = true

@@ -72,78 +72,7 @@ func BenchmarkDemoSweepHonest(b *testing.B) {
 			trueErr = math.Max(trueErr, math.Abs(pt.GainDB-res.dut.GainDBAt(pt.FreqHz)))
 			target = math.Max(target, math.Abs(pt.GainDB-res.settledDB(pt.FreqHz, pt.RangeIndex, p.Level.Vrms)))
 		}
-		sweep := func(cfg *profile.BenchFile, k float64) (fixedResult, error) {
-			return fixedDelaySweep(context.Background(), cfg, freqs, p.Level.Vrms, func(tauS float64) float64 { return k * tauS }, &res)
-		}
-		logRun := func(scale, k float64, fr fixedResult) {
-			b.Logf("fixed delay %.4g τ at time scale %g: %.1f model-s, worst %.4f dB", k, scale, fr.durS, fr.worstConvDB)
-		}
-		run := func(scale, k float64) fixedResult {
-			fr, err := sweep(honestConfig(b, scale), k)
-			if err != nil {
-				b.Fatal(err)
-			}
-			logRun(scale, k, fr)
-			return fr
-		}
-		pass := func(k float64) bool { return run(fastScale, k).worstConvDB <= target }
-		// Bisection on the delay, every candidate a real sweep; the
-		// bracket widens (up, then down) until its ends fail and pass.
-		kLo, kHi := 4.0, 7.0
-		loFailed := false
-		for !pass(kHi) {
-			kLo, kHi, loFailed = kHi, 2*kHi, true
-			if kHi > 64 {
-				b.Fatalf("no fixed delay up to %g τ reaches our worst error %.4f dB", kLo, target)
-			}
-		}
-		for {
-			for kHi-kLo > resolution {
-				mid := (kLo + kHi) / 2
-				if pass(mid) {
-					kHi = mid
-				} else {
-					kLo, loFailed = mid, true
-				}
-			}
-			if loFailed || kLo < resolution || !pass(kLo) {
-				break
-			}
-			kLo, kHi = kLo/2, kLo
-		}
-		// The delay found, at the benchmark's scale (less loopback latency
-		// in model time, so slightly less settling than during the
-		// search): it and the next step up run side by side on two
-		// benches, to save a run when the first misses.
-		var pair [2]fixedResult
-		var pairErr [2]error
-		var wg sync.WaitGroup
-		for j := range pair {
-			cfg := honestConfig(b, scale)
-			wg.Add(1)
-			go func() {
-				defer wg.Done()
-				pair[j], pairErr[j] = sweep(cfg, kHi+float64(j)*resolution)
-			}()
-		}
-		wg.Wait()
-		for j := range pair {
-			if pairErr[j] != nil {
-				b.Fatal(pairErr[j])
-			}
-			logRun(scale, kHi+float64(j)*resolution, pair[j])
-		}
-		fr := pair[0]
-		if fr.worstConvDB > target {
-			kHi, fr = kHi+resolution, pair[1]
-		}
-		for tries := 0; fr.worstConvDB > target && tries < 2; tries++ {
-			kHi += resolution
-			fr = run(scale, kHi)
-		}
-		if fr.worstConvDB > target {
-			b.Fatalf("fixed delay %g τ: worst error %.4f dB above ours %.4f dB", kHi, fr.worstConvDB, target)
-		}
+		fr, kHi := matchFixedDelay(b, &res, freqs, p.Level.Vrms, target, scale, fastScale, resolution)
 		bs := honestBoundS(res.sim, res.window, freqs, res.vinVrms, p.Settle.Tolerance, res.minApertureS)
 		b.Logf("ours %.2f s (worst %.4f dB from the settled value, %.4f dB from the true gain), fixed delay %.2f τ: %.2f s (worst %.4f dB at %g Hz, %.4f dB; %d range changes), bound %.2f s",
 			res.durS, target, trueErr, kHi, fr.durS, fr.worstConvDB, fr.worstHz, fr.worstDB, fr.rangeChanges, bs)
@@ -171,6 +100,88 @@ func BenchmarkDemoSweepHonest(b *testing.B) {
 	b.ReportMetric(convFixed/n, "err-fixed-conv-db")
 	b.ReportMetric(errFloor/n, "err-floor-db")
 	b.ReportMetric(kSum/n, "delay-tau")
+}
+
+// matchFixedDelay finds the shortest fixed delay, in time constants of
+// the range in use, whose fixed-delay sweep (fixedDelaySweep) over freqs
+// is no worse than target dB from the settled value: a bisection at
+// fastScale, every candidate a real sweep, then the delay found run again
+// at scale, where its time and error are the ones returned.
+func matchFixedDelay(b *testing.B, res *ourSweep, freqs []float64, vrms, target, scale, fastScale, resolution float64) (fixedResult, float64) {
+	b.Helper()
+	sweep := func(cfg *profile.BenchFile, k float64) (fixedResult, error) {
+		return fixedDelaySweep(context.Background(), cfg, freqs, vrms, func(tauS float64) float64 { return k * tauS }, 1, res)
+	}
+	logRun := func(scale, k float64, fr fixedResult) {
+		b.Logf("fixed delay %.4g τ at time scale %g: %.1f model-s, worst %.4f dB", k, scale, fr.durS, fr.worstConvDB)
+	}
+	run := func(scale, k float64) fixedResult {
+		fr, err := sweep(honestConfig(b, scale), k)
+		if err != nil {
+			b.Fatal(err)
+		}
+		logRun(scale, k, fr)
+		return fr
+	}
+	pass := func(k float64) bool { return run(fastScale, k).worstConvDB <= target }
+	// Bisection on the delay, every candidate a real sweep; the
+	// bracket widens (up, then down) until its ends fail and pass.
+	kLo, kHi := 4.0, 7.0
+	loFailed := false
+	for !pass(kHi) {
+		kLo, kHi, loFailed = kHi, 2*kHi, true
+		if kHi > 64 {
+			b.Fatalf("no fixed delay up to %g τ reaches our worst error %.4f dB", kLo, target)
+		}
+	}
+	for {
+		for kHi-kLo > resolution {
+			mid := (kLo + kHi) / 2
+			if pass(mid) {
+				kHi = mid
+			} else {
+				kLo, loFailed = mid, true
+			}
+		}
+		if loFailed || kLo < resolution || !pass(kLo) {
+			break
+		}
+		kLo, kHi = kLo/2, kLo
+	}
+	// The delay found, at the benchmark's scale (less loopback latency
+	// in model time, so slightly less settling than during the
+	// search): it and the next step up run side by side on two
+	// benches, to save a run when the first misses.
+	var pair [2]fixedResult
+	var pairErr [2]error
+	var wg sync.WaitGroup
+	for j := range pair {
+		cfg := honestConfig(b, scale)
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			pair[j], pairErr[j] = sweep(cfg, kHi+float64(j)*resolution)
+		}()
+	}
+	wg.Wait()
+	for j := range pair {
+		if pairErr[j] != nil {
+			b.Fatal(pairErr[j])
+		}
+		logRun(scale, kHi+float64(j)*resolution, pair[j])
+	}
+	fr := pair[0]
+	if fr.worstConvDB > target {
+		kHi, fr = kHi+resolution, pair[1]
+	}
+	for tries := 0; fr.worstConvDB > target && tries < 2; tries++ {
+		kHi += resolution
+		fr = run(scale, kHi)
+	}
+	if fr.worstConvDB > target {
+		b.Fatalf("fixed delay %g τ: worst error %.4f dB above ours %.4f dB", kHi, fr.worstConvDB, target)
+	}
+	return fr, kHi
 }
 
 // honestPlan is the shipped demo-plan.toml.
@@ -377,10 +388,11 @@ func honestBoundS(sc sim.Config, win driver.Window, freqs []float64, vinVrms, to
 
 // fixedResult is one fixed-delay sweep.
 type fixedResult struct {
-	durS         float64 // model seconds from the first command to output off
-	worstDB      float64 // worst |gain − the DUT's true gain|, dB
-	worstConvDB  float64 // worst |gain − a fully settled reading's gain|, dB
-	worstHz      float64 // where
+	durS         float64   // model seconds from the first command to output off
+	gainsDB      []float64 // the gain read at each frequency, in order
+	worstDB      float64   // worst |gain − the DUT's true gain|, dB
+	worstConvDB  float64   // worst |gain − a fully settled reading's gain|, dB
+	worstHz      float64   // where
 	rangeChanges int
 }
 
@@ -406,9 +418,12 @@ type fixedResult struct {
 //   - Holds: readings are kept clear of the converter's output holds
 //     with the simulator's schedule, which a real user could only guess.
 //
+// reads readings are averaged in mean square at each point (1 for the
+// rival; more for a reference sweep).
+//
 // These choices favour the fixed-delay sweep, so that the ratio to it is
 // not flattered.
-func fixedDelaySweep(ctx context.Context, cfg *profile.BenchFile, freqs []float64, vrms float64, delayS func(tauS float64) float64, ref *ourSweep) (fixedResult, error) {
+func fixedDelaySweep(ctx context.Context, cfg *profile.BenchFile, freqs []float64, vrms float64, delayS func(tauS float64) float64, reads int, ref *ourSweep) (fixedResult, error) {
 	var res fixedResult
 	bn, err := bench.Open(ctx, cfg, zerolog.Nop())
 	if err != nil {
@@ -491,7 +506,23 @@ func fixedDelaySweep(ctx context.Context, cfg *profile.BenchFile, freqs []float6
 				if over || !(rd.Vrms > 0) {
 					return res, fail(fmt.Sprintf("%g Hz", f), fmt.Errorf("no reading in the window (status %v)", rd.Status))
 				}
-				g := 20 * math.Log10(rd.Vrms/vrms)
+				// More readings of the settled value, averaged in
+				// mean square (a reference sweep's; the rival reads once).
+				ms := rd.Vrms * rd.Vrms
+				for k := 1; k < reads; k++ {
+					waitModel(ctx, sm, clearOfHolds(sm.ModelTime(), ap, hold))
+					v, err := dvm.ReadDC(ctx)
+					if err != nil {
+						return res, fail("reading", err)
+					}
+					r2, err := conv.Scale(rng, v)
+					if err != nil {
+						return res, fail("scale", err)
+					}
+					ms += r2.Vrms * r2.Vrms
+				}
+				g := 10 * math.Log10(ms/float64(max(reads, 1))/(vrms*vrms))
+				res.gainsDB = append(res.gainsDB, g)
 				res.worstDB = math.Max(res.worstDB, math.Abs(g-ref.dut.GainDBAt(f)))
 				if e := math.Abs(g - ref.settledDB(f, rng, vrms)); e > res.worstConvDB {
 					res.worstConvDB, res.worstHz = e, f
