@@ -98,6 +98,7 @@ func New(cfg Config) (*Bench, error) {
 		SaturateFraction: cfg.Converter.SaturateFraction,
 		FloorFraction:    cfg.Converter.FloorFraction,
 		Hold:             model.Hold{IntervalS: cfg.Converter.HoldIntervalS, DurationS: cfg.Converter.HoldS},
+		PostFilterS:      cfg.Converter.PostFilterS,
 	}
 	for _, r := range cfg.Converter.Ranges {
 		cp.Ranges = append(cp.Ranges, model.Range{FullScaleVrms: r.FullScaleVrms, TauS: r.TimeConstantS})

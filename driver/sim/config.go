@@ -134,6 +134,10 @@ type ConverterConfig struct {
 	// Every HoldIntervalS the output is frozen for HoldS (0: never).
 	HoldIntervalS float64 `toml:"hold_interval_s"`
 	HoldS         float64 `toml:"hold_s"`
+	// PostFilterS is the time constant of a first-order filter between
+	// the averager and the DC output, physical seconds (0: none): a
+	// second pole, whose output approaches a step as two exponentials.
+	PostFilterS float64 `toml:"post_filter_s"`
 	// InitialRange is the range index selected at power-on (-1: none).
 	InitialRange int `toml:"initial_range"`
 }
@@ -435,6 +439,7 @@ func (c *Config) Validate() error {
 	}
 	between("converter.droop_hz", v.DroopHz, 0, 1e12)
 	between("converter.hold_interval_s", v.HoldIntervalS, 0, 1e4)
+	between("converter.post_filter_s", v.PostFilterS, 0, 1000)
 	if !finite(v.HoldS) || v.HoldS < 0 || (v.HoldS > 0 && v.HoldS >= v.HoldIntervalS) {
 		bad("converter.hold_s", v.HoldS, fmt.Sprintf(">= 0 and < converter.hold_interval_s (%g)", v.HoldIntervalS))
 	}

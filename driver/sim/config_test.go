@@ -2,6 +2,7 @@ package sim
 
 import (
 	"errors"
+	"math"
 	"strings"
 	"testing"
 
@@ -37,6 +38,8 @@ func TestValidateNamesKey(t *testing.T) {
 		{func(c *Config) { c.Converter.Ranges[2].FullScaleVrms = 1e-4 }, "converter.ranges[2].full_scale_vrms"},
 		{func(c *Config) { c.Converter.Ranges[0].TimeConstantS = 0 }, "converter.ranges[0].time_constant_s"},
 		{func(c *Config) { c.Converter.HoldS = 2 }, "converter.hold_s"},
+		{func(c *Config) { c.Converter.PostFilterS = -0.1 }, "converter.post_filter_s"},
+		{func(c *Config) { c.Converter.PostFilterS = math.NaN() }, "converter.post_filter_s"},
 		{func(c *Config) { c.Converter.InitialRange = 12 }, "converter.initial_range"},
 		{func(c *Config) { c.Generator.ResetUnit = "AMPS" }, "generator.reset_unit"},
 		{func(c *Config) { c.Generator.IDN = "no commas" }, "generator.idn"},

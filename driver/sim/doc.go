@@ -85,6 +85,7 @@
 //	[converter] dc_full_scale_v, saturate_fraction, floor_fraction,
 //	            noise_v, noise_bandwidth_hz, droop_hz (0 = none),
 //	            hold_interval_s, hold_s, initial_range (-1 = none),
+//	            post_filter_s (a second pole; 0 = none),
 //	            [[converter.ranges]] name, full_scale_vrms, time_constant_s
 //	[voltmeter] idn, ranges_v, over_range_fraction, noise_v, reset_nplc,
 //	            max_samples, personality, query_latency_s,

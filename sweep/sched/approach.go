@@ -69,13 +69,21 @@ func (a *approachRun) accepted() bool { return a != nil && a.ok }
 
 // canPredict reports whether the point may try a prediction: the plan
 // allows it, the converter's DC output is read, its time constant is
-// known, the effect of a range change on its state is, and the point has
-// a converter model to check against.
+// known, the effect of a range change on its state is, the point has a
+// converter model to check against, and readings are quick enough to
+// follow the approach.
 func (p *pointRun) canPredict() bool {
 	s := p.s
 	return s.plan.Settle.Predicting() && s.inst.Converter != nil && s.inst.DCVoltmeter != nil &&
-		p.tau > 0 && !p.alt && !p.scout && !p.discriminate && p.predicted
+		p.tau > 0 && !p.alt && !p.scout && !p.discriminate && p.predicted &&
+		s.bench.reading.TimeS(s.meter()) <= p.tau/predictReadsPerTau
 }
+
+// predictReadsPerTau is the fewest readings per time constant the
+// prediction needs: slower readings (a meter's fixed long aperture, a
+// slow query, whole ripple periods at low frequencies) sample too little
+// of the approach to fit it before waiting would have ended.
+const predictReadsPerTau = 4
 
 // startApproach starts the prediction when the point may try one: it
 // returns the time (s after the step) to start reading at, the settle

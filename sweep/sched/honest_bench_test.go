@@ -72,7 +72,7 @@ func BenchmarkDemoSweepHonest(b *testing.B) {
 			trueErr = math.Max(trueErr, math.Abs(pt.GainDB-res.dut.GainDBAt(pt.FreqHz)))
 			target = math.Max(target, math.Abs(pt.GainDB-res.settledDB(pt.FreqHz, pt.RangeIndex, p.Level.Vrms)))
 		}
-		fr, kHi := matchFixedDelay(b, &res, freqs, p.Level.Vrms, target, scale, fastScale, resolution)
+		fr, kHi := matchFixedDelay(b, &res, freqs, p.Level.Vrms, target, scale, fastScale, resolution, honestConfig)
 		bs := honestBoundS(res.sim, res.window, freqs, res.vinVrms, p.Settle.Tolerance, res.minApertureS)
 		b.Logf("ours %.2f s (worst %.4f dB from the settled value, %.4f dB from the true gain), fixed delay %.2f τ: %.2f s (worst %.4f dB at %g Hz, %.4f dB; %d range changes), bound %.2f s",
 			res.durS, target, trueErr, kHi, fr.durS, fr.worstConvDB, fr.worstHz, fr.worstDB, fr.rangeChanges, bs)
@@ -104,10 +104,11 @@ func BenchmarkDemoSweepHonest(b *testing.B) {
 
 // matchFixedDelay finds the shortest fixed delay, in time constants of
 // the range in use, whose fixed-delay sweep (fixedDelaySweep) over freqs
-// is no worse than target dB from the settled value: a bisection at
+// on fresh benches of mk is no worse than target dB from the settled
+// value: a bisection at
 // fastScale, every candidate a real sweep, then the delay found run again
 // at scale, where its time and error are the ones returned.
-func matchFixedDelay(b *testing.B, res *ourSweep, freqs []float64, vrms, target, scale, fastScale, resolution float64) (fixedResult, float64) {
+func matchFixedDelay(b *testing.B, res *ourSweep, freqs []float64, vrms, target, scale, fastScale, resolution float64, mk func(testing.TB, float64) *profile.BenchFile) (fixedResult, float64) {
 	b.Helper()
 	sweep := func(cfg *profile.BenchFile, k float64) (fixedResult, error) {
 		return fixedDelaySweep(context.Background(), cfg, freqs, vrms, func(tauS float64) float64 { return k * tauS }, 1, res)
@@ -116,7 +117,7 @@ func matchFixedDelay(b *testing.B, res *ourSweep, freqs []float64, vrms, target,
 		b.Logf("fixed delay %.4g τ at time scale %g: %.1f model-s, worst %.4f dB", k, scale, fr.durS, fr.worstConvDB)
 	}
 	run := func(scale, k float64) fixedResult {
-		fr, err := sweep(honestConfig(b, scale), k)
+		fr, err := sweep(mk(b, scale), k)
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -156,7 +157,7 @@ func matchFixedDelay(b *testing.B, res *ourSweep, freqs []float64, vrms, target,
 	var pairErr [2]error
 	var wg sync.WaitGroup
 	for j := range pair {
-		cfg := honestConfig(b, scale)
+		cfg := mk(b, scale)
 		wg.Add(1)
 		go func() {
 			defer wg.Done()

@@ -14,6 +14,7 @@ import (
 	"rolloff/driver/bench"
 	"rolloff/driver/profile"
 	"rolloff/driver/sim"
+	"rolloff/sweep/plan"
 	"rolloff/sweep/point"
 	"rolloff/sweep/sched"
 	"rolloff/sweep/sched/onbench"
@@ -47,9 +48,21 @@ import (
 //     per decade), that settle alone is several τ, and ln(1/ε)·τ is
 //     only 6.2 τ: no waiting strategy is three times quicker there.
 //   - points-per-s: our sweep's points per model second.
-func BenchmarkPlainMeterSweep(b *testing.B) {
+func BenchmarkPlainMeterSweep(b *testing.B) { plainMeterSweep(b, func(*plan.Plan) {}) }
+
+// BenchmarkPlainMeterSweepPredicted is BenchmarkPlainMeterSweep with the
+// plan's settle.predict on.
+func BenchmarkPlainMeterSweepPredicted(b *testing.B) {
+	on := true
+	plainMeterSweep(b, func(p *plan.Plan) { p.Settle.Predict = &on })
+}
+
+// plainMeterSweep runs the plain-meter benchmark for the demo plan
+// changed by edit.
+func plainMeterSweep(b *testing.B, edit func(*plan.Plan)) {
 	const scale = 4
 	p := demoPlan(b)
+	edit(p)
 	var xf, xb, ours, fixed, pps, errOurs, errFixed float64
 	for i := 0; i < b.N; i++ {
 		cfg := plainConfig(b, "plain-bench.toml", scale)

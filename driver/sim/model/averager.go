@@ -7,20 +7,28 @@ import (
 )
 
 // segment is the averager between two events: a constant input series,
-// time constant and tag (the caller's range index).
+// time constant and tag (the caller's range index). With a post-filter
+// (post > 0) the output is the state y through a second first-order
+// lag, τ2·y2' + y2 = y; filt, trans and trans2 then describe y2, filtY
+// and transY the state y.
 type segment struct {
 	t0, y0, tau float64
+	post        float64 // the post-filter's time constant τ2 (0: none)
 	ms          MeanSquare
 	ts          float64 // the input's phase reference time
 	tag         int
-	filt        []Term  // A_k/(1+jkωτ): the steady-state ripple terms
-	trans       float64 // y0 - y_ss(t0): the transient's amplitude
+	filt        []Term  // the output's steady-state ripple terms
+	filtY       []Term  // A_k/(1+jkωτ): the state's steady-state ripple terms
+	trans       float64 // the output's e^(−t/τ) amplitude
+	trans2      float64 // the output's e^(−t/τ2) amplitude (post-filter only)
+	transY      float64 // y0 − y_ss(t0): the state's transient amplitude
 	rippleAmp   float64 // Σ|filt|, the steady-state ripple bound
 	rippleHz    float64 // frequency of the highest term
 	rippleLowHz float64 // frequency of the lowest term
 }
 
-// steady returns y_ss(t) and, with ripple false, its mean C0.
+// steady returns the output's steady state at t and, with ripple false,
+// its mean C0.
 func (s *segment) steady(t float64, ripple bool) float64 {
 	if !ripple || len(s.filt) == 0 {
 		return s.ms.C0
@@ -28,11 +36,13 @@ func (s *segment) steady(t float64, ripple bool) float64 {
 	return s.ms.C0 + s.ripple(t)
 }
 
-// ripple returns the steady-state ripple y_ss(t) - C0. The phase is
-// reduced to cycles of the fundamental first, to stay accurate at MHz,
-// and e^{jKθ} is built by repeated multiplication (terms are sorted by
-// K).
-func (s *segment) ripple(t float64) float64 {
+// ripple returns the output's steady-state ripple y_ss(t) − C0.
+func (s *segment) ripple(t float64) float64 { return s.rippleOf(s.filt, t) }
+
+// rippleOf returns the ripple the terms make at t. The phase is reduced
+// to cycles of the fundamental first, to stay accurate at MHz, and
+// e^{jKθ} is built by repeated multiplication (terms are sorted by K).
+func (s *segment) rippleOf(terms []Term, t float64) float64 {
 	cyc := s.ms.FreqHz * (t - s.ts)
 	cyc -= math.Floor(cyc)
 	sin, cos := math.Sincos(2 * math.Pi * cyc)
@@ -40,7 +50,7 @@ func (s *segment) ripple(t float64) float64 {
 	zk := complex(1, 0)
 	k := 0
 	var y float64
-	for _, term := range s.filt {
+	for _, term := range terms {
 		for k < term.K {
 			zk *= z
 			k++
@@ -50,13 +60,47 @@ func (s *segment) ripple(t float64) float64 {
 	return y
 }
 
-// value returns y(t) within the segment.
+// value returns the output (y, or y2 behind a post-filter) at t within
+// the segment.
 func (s *segment) value(t float64, ripple bool) float64 {
 	y := s.steady(t, ripple)
 	if s.trans != 0 {
 		y += s.trans * math.Exp(-(t-s.t0)/s.tau)
 	}
+	if s.trans2 != 0 {
+		y += s.trans2 * math.Exp(-(t-s.t0)/s.post)
+	}
 	return y
+}
+
+// state returns the averager's state y at t within the segment (the
+// output when there is no post-filter).
+func (s *segment) state(t float64) float64 {
+	if s.post == 0 {
+		return s.value(t, true)
+	}
+	y := s.ms.C0 + s.rippleOf(s.filtY, t)
+	if s.transY != 0 {
+		y += s.transY * math.Exp(-(t-s.t0)/s.tau)
+	}
+	return y
+}
+
+// tauMin is the shorter of the segment's time constants.
+func (s *segment) tauMin() float64 {
+	if s.post > 0 {
+		return math.Min(s.tau, s.post)
+	}
+	return s.tau
+}
+
+// transAt bounds the transients' size at t.
+func (s *segment) transAt(t float64) float64 {
+	v := math.Abs(s.trans) * math.Exp(-(t-s.t0)/s.tau)
+	if s.trans2 != 0 {
+		v += math.Abs(s.trans2) * math.Exp(-(t-s.t0)/s.post)
+	}
+	return v
 }
 
 // Averager is a first-order mean-square averager, τ y' + y = u, whose
@@ -65,6 +109,7 @@ func (s *segment) value(t float64, ripple bool) float64 {
 // the recent past (a voltmeter aperture) can be evaluated.
 type Averager struct {
 	segs []segment
+	post float64 // the post-filter's time constant (0: none)
 }
 
 // maxSegments bounds the history.
@@ -73,26 +118,56 @@ const maxSegments = 4096
 // NewAverager returns an averager at rest (y = 0, no input) from time t0
 // with time constant tauS and tag.
 func NewAverager(t0, tauS float64, tag int) *Averager {
-	a := &Averager{}
-	a.segs = append(a.segs, newSegment(t0, 0, tauS, MeanSquare{}, t0, tag))
+	return NewFilteredAverager(t0, tauS, 0, tag)
+}
+
+// NewFilteredAverager is NewAverager with the averager's output behind a
+// second first-order lag of time constant postS (0: none), as a
+// converter's output filter makes it: the output approaches a step as
+// the sum of two exponentials, not one. A post-filter within 10⁻⁶ of
+// the averager's time constant is taken 10⁻⁶ longer (the double pole's
+// solution t·e^(−t/τ) differs from the nudged one by about that much of
+// the transient).
+func NewFilteredAverager(t0, tauS, postS float64, tag int) *Averager {
+	a := &Averager{post: postS}
+	a.segs = append(a.segs, a.newSegment(t0, 0, 0, tauS, MeanSquare{}, t0, tag))
 	return a
 }
 
-func newSegment(t0, y0, tau float64, ms MeanSquare, ts float64, tag int) segment {
-	s := segment{t0: t0, y0: y0, tau: tau, ms: ms, ts: ts, tag: tag}
+// newSegment starts a segment at t0 from the state y0 and the output
+// y20 (the same without a post-filter).
+func (a *Averager) newSegment(t0, y0, y20, tau float64, ms MeanSquare, ts float64, tag int) segment {
+	post := a.post
+	if post > 0 && math.Abs(post-tau) <= 1e-6*tau {
+		post = tau * (1 + 1e-6)
+	}
+	s := segment{t0: t0, y0: y0, tau: tau, post: post, ms: ms, ts: ts, tag: tag}
 	lo := math.Inf(1)
 	for _, term := range ms.Terms {
 		w := 2 * math.Pi * float64(term.K) * ms.FreqHz
-		a := term.A / complex(1, w*tau)
-		s.filt = append(s.filt, Term{K: term.K, A: a})
-		s.rippleAmp += cmplx.Abs(a)
+		ay := term.A / complex(1, w*tau)
+		s.filtY = append(s.filtY, Term{K: term.K, A: ay})
+		ao := ay
+		if post > 0 {
+			ao /= complex(1, w*post)
+		}
+		s.filt = append(s.filt, Term{K: term.K, A: ao})
+		s.rippleAmp += cmplx.Abs(ao)
 		s.rippleHz = math.Max(s.rippleHz, float64(term.K)*ms.FreqHz)
 		lo = math.Min(lo, float64(term.K)*ms.FreqHz)
 	}
 	if len(s.filt) > 0 {
 		s.rippleLowHz = lo
 	}
-	s.trans = y0 - s.steady(t0, true)
+	s.transY = y0 - (ms.C0 + s.rippleOf(s.filtY, t0))
+	if post == 0 {
+		s.trans = s.transY
+		return s
+	}
+	// τ2·y2' + y2 = y_ss + A·e^(−t/τ): the exponential passes the lag as
+	// A·τ/(τ − τ2)·e^(−t/τ); e^(−t/τ2) takes up the output's start.
+	s.trans = s.transY * tau / (tau - post)
+	s.trans2 = y20 - s.steady(t0, true) - s.trans
 	return s
 }
 
@@ -104,8 +179,7 @@ func (a *Averager) Set(t float64, ms MeanSquare, ts, tauS float64, tag int) {
 	if t < last.t0 {
 		t = last.t0
 	}
-	y := last.value(t, true)
-	s := newSegment(t, y, tauS, ms, ts, tag)
+	s := a.newSegment(t, last.state(t), last.value(t, true), tauS, ms, ts, tag)
 	if t == last.t0 {
 		*last = s
 		return
@@ -256,11 +330,10 @@ func (a *Averager) integrate(lo, hi float64, out Output) float64 {
 	s := &a.segs[a.index((lo+hi)/2)]
 	width := hi - lo
 	c0 := math.Max(s.ms.C0, 1e-300)
-	transAt := func(t float64) float64 { return math.Abs(s.trans) * math.Exp(-(t-s.t0)/s.tau) }
-	transMatters := func(t float64) bool { return s.trans != 0 && transAt(t) > 1e-13*c0 }
+	transMatters := func(t float64) bool { return (s.trans != 0 || s.trans2 != 0) && s.transAt(t) > 1e-13*c0 }
 	smoothN := func(lo, hi float64) int {
 		if transMatters(lo) {
-			return int(math.Ceil((hi - lo) / (s.tau / 2)))
+			return int(math.Ceil((hi - lo) / (s.tauMin() / 2)))
 		}
 		return 1
 	}
@@ -299,7 +372,7 @@ func (a *Averager) integrate(lo, hi float64, out Output) float64 {
 	switch {
 	case !transMatters(a0):
 		sum += float64(nPer) * brute(a0, a0+T)
-	case T < s.tau/50:
+	case T < s.tauMin()/50:
 		// Period average at the transient's slowly moving mean.
 		n := perPeriod
 		h := T / float64(n)

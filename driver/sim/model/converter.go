@@ -15,6 +15,9 @@ type ConverterParams struct {
 	SaturateFraction float64 // the DC output saturates at this × DCFullScaleV
 	FloorFraction    float64 // input-referred noise floor, fraction of full scale, adds in power
 	Hold             Hold    // output frozen periodically
+	// PostFilterS is the time constant of a first-order filter after the
+	// averager (a second pole), physical seconds; 0: none.
+	PostFilterS float64
 	// InputGain, when set, is the converter's gain error on range rng
 	// for an input at freqHz, as a factor on the reading (range
 	// calibration times flatness; 1 is perfect). It scales the RMS the
@@ -47,7 +50,7 @@ type Converter struct {
 // NewConverter returns a converter at rest at time t0 on range rng.
 func NewConverter(p ConverterParams, t0 float64, rng int) *Converter {
 	c := &Converter{p: p}
-	c.avg = NewAverager(t0, c.tau(rng), rng)
+	c.avg = NewFilteredAverager(t0, c.tau(rng), p.PostFilterS, rng)
 	return c
 }
 
