@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"sort"
 
 	"rolloff/driver"
 	"rolloff/sweep/analysis"
@@ -226,6 +227,10 @@ func (p *pointRun) judgeApproach() (next reaction, done bool) {
 		a.why = fmt.Sprintf("the approach is not one exponential (χ² %.3g on %d degrees of freedom)", f.Chi2, f.Dof)
 		return readMore, false
 	}
+	if r := a.misfit(f); r > misfitRatio {
+		a.why = fmt.Sprintf("the approach is not one exponential (its residuals are %.3g times the readings' scatter)", r)
+		return readMore, false
+	}
 	if o.UTauS < tauProfileRel*o.TauS && f.UTauS > 0 && math.Abs(f.TauS-o.TauS) > 4*math.Hypot(o.UTauS, f.UTauS) {
 		a.why = fmt.Sprintf("the approach's time constant %.3g s is not the range's %.3g s", f.TauS, o.TauS)
 		return readMore, false
@@ -264,6 +269,47 @@ func (p *pointRun) judgeApproach() (next reaction, done bool) {
 	a.ok = true
 	return stopRead, true
 }
+
+// misfitRatio bounds misfit: a single-pole converter's approaches on the
+// simulated bench stay under 1.5, one behind a second pole of 0.375 τ
+// reaches 5 to 140 (sweep/sched's second-pole benchmark).
+const misfitRatio = 3
+
+// misfit compares the fit's residual scatter with the readings' own,
+// from their second differences (a trend-free estimate: a smooth
+// approach leaves little in them, a wrong model all of its misfit in the
+// residuals): the ratio of the two, 0 with fewer than misfitReadings
+// readings. Noise estimated from the residuals alone (a range's first
+// approach) cannot tell a wrong model from noise; this can. The
+// second-difference scatter is the median |Δ²m|/(0.6745·√6), robust to
+// the few large ones early in a fast approach (0.6745: the normal
+// distribution's quartile; √6: the variance of a second difference of
+// white noise).
+func (a *approachRun) misfit(f settle.ApproachFit) float64 {
+	n := len(a.tS)
+	if n < misfitReadings || f.Dof <= 0 {
+		return 0
+	}
+	d := make([]float64, 0, n-2)
+	for i := 1; i+1 < n; i++ {
+		d = append(d, math.Abs(a.mMS[i+1]-2*a.mMS[i]+a.mMS[i-1]))
+	}
+	sort.Float64s(d)
+	sd := d[len(d)/2] / (0.6745 * math.Sqrt(6))
+	var ss float64
+	for i := 0; i < n; i++ {
+		r := a.mMS[i] - f.Reading(a.tS[i])
+		ss += r * r
+	}
+	sr := math.Sqrt(ss / float64(f.Dof))
+	if !(sd > 0) {
+		return 0
+	}
+	return sr / sd
+}
+
+// misfitReadings is the fewest readings misfit judges.
+const misfitReadings = 8
 
 // fitTimed fits the first n readings, their deviations widened by what
 // the uncertainty of their times makes of the approach's slope
