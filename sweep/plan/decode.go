@@ -609,6 +609,18 @@ func (w *jsonWalker) walk(v reflect.Value, field string) error {
 		}
 		v.SetBool(b)
 		return nil
+	case reflect.Pointer:
+		// An optional switch (nil: the default).
+		if t.Elem().Kind() == reflect.Bool {
+			b, ok := tok.(bool)
+			if !ok {
+				return w.typeErr(field, tok, "true or false")
+			}
+			nv := reflect.New(t.Elem())
+			nv.Elem().SetBool(b)
+			v.Set(nv)
+			return nil
+		}
 	}
 	return &FieldError{File: w.src.file, Line: w.line(), Field: field, Allowed: "unsupported field type " + t.String()}
 }
