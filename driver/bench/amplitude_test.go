@@ -2,7 +2,6 @@ package bench
 
 import (
 	"fmt"
-	"io/fs"
 	"math"
 	"strings"
 	"testing"
@@ -10,7 +9,7 @@ import (
 
 	"github.com/rs/zerolog"
 
-	"rolloff/configs"
+	"rolloff/configs/configstest"
 	"rolloff/driver"
 	"rolloff/driver/profile"
 )
@@ -37,14 +36,7 @@ var genCases = []genCase{
 // and the bench text edited.
 func loadBenchWith(t *testing.T, genEdits, benchEdits []string) (*profile.BenchFile, error) {
 	t.Helper()
-	m := fstest.MapFS{}
-	for _, n := range configs.Names() {
-		data, err := fs.ReadFile(configs.FS(), n)
-		if err != nil {
-			t.Fatal(err)
-		}
-		m[n] = &fstest.MapFile{Data: data}
-	}
+	m := configstest.MapFS(t)
 	m["generator-scpi.toml"].Data = []byte(editText(t, string(m["generator-scpi.toml"].Data), genEdits))
 	m["test-bench.toml"] = &fstest.MapFile{Data: []byte(simBenchText(t, benchEdits...))}
 	return profile.LoadBenchFS(m, "test-bench.toml")

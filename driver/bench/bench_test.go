@@ -3,7 +3,6 @@ package bench
 import (
 	"context"
 	"errors"
-	"io/fs"
 	"math"
 	"net"
 	"strings"
@@ -14,6 +13,7 @@ import (
 	"github.com/rs/zerolog"
 
 	"rolloff/configs"
+	"rolloff/configs/configstest"
 	"rolloff/driver"
 	"rolloff/driver/profile"
 	"rolloff/driver/sim"
@@ -28,14 +28,7 @@ func testCtx(t *testing.T) context.Context {
 // benchFrom loads bench text against the embedded profiles.
 func benchFrom(t *testing.T, text string) *profile.BenchFile {
 	t.Helper()
-	m := fstest.MapFS{}
-	for _, n := range configs.Names() {
-		data, err := fs.ReadFile(configs.FS(), n)
-		if err != nil {
-			t.Fatal(err)
-		}
-		m[n] = &fstest.MapFile{Data: data}
-	}
+	m := configstest.MapFS(t)
 	m["test-bench.toml"] = &fstest.MapFile{Data: []byte(text)}
 	cfg, err := profile.LoadBenchFS(m, "test-bench.toml")
 	if err != nil {
@@ -308,11 +301,7 @@ func TestIdentityMismatch(t *testing.T) {
 		t.Fatal(err)
 	}
 	gp := strings.Replace(string(data), `model_prefix = ""`, `model_prefix = "OTHER-"`, 1)
-	m := fstest.MapFS{}
-	for _, n := range configs.Names() {
-		d, _ := fs.ReadFile(configs.FS(), n)
-		m[n] = &fstest.MapFile{Data: d}
-	}
+	m := configstest.MapFS(t)
 	m["generator-scpi.toml"] = &fstest.MapFile{Data: []byte(gp)}
 	cfg, err := profile.LoadBenchFS(m, configs.SimBench)
 	if err != nil {

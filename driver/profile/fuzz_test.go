@@ -4,9 +4,9 @@ import (
 	"io/fs"
 	"strings"
 	"testing"
-	"testing/fstest"
 
 	"rolloff/configs"
+	"rolloff/configs/configstest"
 	"rolloff/driver/profile"
 	"rolloff/driver/sim"
 )
@@ -24,14 +24,7 @@ func FuzzDecodeBench(f *testing.F) {
 			f.Add(data)
 		}
 	}
-	m := fstest.MapFS{}
-	for _, n := range configs.Names() {
-		data, err := fs.ReadFile(configs.FS(), n)
-		if err != nil {
-			f.Fatal(err)
-		}
-		m[n] = &fstest.MapFile{Data: data}
-	}
+	m := configstest.MapFS(f)
 	read := func(name string) ([]byte, error) { return fs.ReadFile(m, name) }
 	f.Fuzz(func(t *testing.T, data []byte) {
 		b, err := profile.DecodeBench("fuzz.toml", data, read, func(rel string) string { return rel })

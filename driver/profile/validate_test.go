@@ -3,12 +3,12 @@ package profile_test
 import (
 	"errors"
 	"fmt"
-	"io/fs"
 	"strings"
 	"testing"
 	"testing/fstest"
 
 	"rolloff/configs"
+	"rolloff/configs/configstest"
 	"rolloff/driver/profile"
 	"rolloff/driver/sim"
 )
@@ -193,14 +193,7 @@ func TestProfileValidation(t *testing.T) {
 // (pairs of old, new) and extra files added.
 func benchFS(t *testing.T, file string, edits []string, extra map[string]string) fstest.MapFS {
 	t.Helper()
-	m := fstest.MapFS{}
-	for _, n := range configs.Names() {
-		data, err := fs.ReadFile(configs.FS(), n)
-		if err != nil {
-			t.Fatal(err)
-		}
-		m[n] = &fstest.MapFile{Data: data}
-	}
+	m := configstest.MapFS(t)
 	if file != "" {
 		m[file] = &fstest.MapFile{Data: []byte(edit(t, file, edits...))}
 	}

@@ -3,7 +3,6 @@ package sim_test
 import (
 	"context"
 	"encoding/json"
-	"io/fs"
 	"math"
 	"strings"
 	"testing"
@@ -13,6 +12,7 @@ import (
 	"github.com/rs/zerolog"
 
 	"rolloff/configs"
+	"rolloff/configs/configstest"
 	"rolloff/driver/bench"
 	"rolloff/driver/profile"
 	"rolloff/sweep/event"
@@ -48,20 +48,9 @@ var dialects = []dialect{
 // extra (old, new) edits applied to the named profile files.
 func dialectFS(t testing.TB, d dialect, scale float64, edits map[string][]string) fstest.MapFS {
 	t.Helper()
-	m := fstest.MapFS{}
-	for _, n := range configs.Names() {
-		data, err := fs.ReadFile(configs.FS(), n)
-		if err != nil {
-			t.Fatal(err)
-		}
-		s := string(data)
-		for i := 0; i+1 < len(edits[n]); i += 2 {
-			if !strings.Contains(s, edits[n][i]) {
-				t.Fatalf("%s: %q not found", n, edits[n][i])
-			}
-			s = strings.Replace(s, edits[n][i], edits[n][i+1], 1)
-		}
-		m[n] = &fstest.MapFile{Data: []byte(s)}
+	m := configstest.MapFS(t)
+	for n, e := range edits {
+		configstest.Edit(t, m, n, e...)
 	}
 	b := string(m[configs.SimBench].Data)
 	for _, r := range [][2]string{

@@ -2,16 +2,14 @@ package sim
 
 import (
 	"fmt"
-	"io/fs"
 	"math"
 	"math/rand/v2"
 	"reflect"
 	"sort"
-	"strings"
 	"testing"
-	"testing/fstest"
 
 	"rolloff/configs"
+	"rolloff/configs/configstest"
 	"rolloff/driver/profile"
 	"rolloff/driver/sim/model"
 )
@@ -509,26 +507,9 @@ func TestSystematicDrift(t *testing.T) {
 func TestSystematicBenchFile(t *testing.T) {
 	load := func(edits map[string][2]string) (*Config, error) {
 		t.Helper()
-		mfs := fstest.MapFS{}
-		err := fs.WalkDir(configs.FS(), ".", func(path string, d fs.DirEntry, err error) error {
-			if err != nil || d.IsDir() {
-				return err
-			}
-			data, err := fs.ReadFile(configs.FS(), path)
-			if err != nil {
-				return err
-			}
-			if ed, ok := edits[path]; ok {
-				if !strings.Contains(string(data), ed[0]) {
-					t.Fatalf("%s: %q not found", path, ed[0])
-				}
-				data = []byte(strings.Replace(string(data), ed[0], ed[1], 1))
-			}
-			mfs[path] = &fstest.MapFile{Data: data}
-			return nil
-		})
-		if err != nil {
-			t.Fatal(err)
+		mfs := configstest.MapFS(t)
+		for path, ed := range edits {
+			configstest.Edit(t, mfs, path, ed[0], ed[1])
 		}
 		bf, err := profile.LoadBenchFS(mfs, configs.SimBench)
 		if err != nil {

@@ -56,10 +56,9 @@ type approachRun struct {
 	why          string // why it was given up ("" while on)
 	opts         settle.ApproachOpts
 	deadlineS    float64 // s after the step: the prediction is given up by then
-	// good is set while the last fit passed every check but perhaps the
-	// uncertainty's, uRel its relative standard uncertainty on the Vrms.
+	// good is set while the last fit (fit) passed every check but
+	// perhaps the uncertainty's.
 	good bool
-	uRel float64
 }
 
 // active reports whether the prediction is still being tried.
@@ -181,13 +180,13 @@ func (p *pointRun) approachReading(ctx context.Context, ts, spanS, v, t1 float64
 		// Waiting would end now on a reading within the tolerance; a
 		// prediction that passed every check and is known to a fraction
 		// of it is the better value.
-		if a.good && 2*a.uRel <= deadlineTolFrac*p.tol {
+		if a.good && 2*a.fit.URel() <= deadlineTolFrac*p.tol {
 			a.ok = true
 			return stopRead, nil
 		}
 		why := "waiting reads as soon as the prediction could end"
 		if f := a.fit; f.MInf > 0 {
-			why = fmt.Sprintf("%s (its expanded uncertainty was %.2g %% with %d readings)", why, 100*f.UMInf/f.MInf, len(a.tS))
+			why = fmt.Sprintf("%s (its expanded uncertainty was %.2g %% with %d readings)", why, 200*f.URel(), len(a.tS))
 		}
 		return p.giveUp(ctx, why)
 	}
@@ -262,8 +261,8 @@ func (p *pointRun) judgeApproach() (next reaction, done bool) {
 		a.why = "the predicted value is outside the converter's window"
 		return readMore, false
 	}
-	a.good, a.uRel = true, f.UMInf/(2*f.MInf)
-	if 2*a.uRel > predictTolFrac*p.tol {
+	a.good = true
+	if 2*f.URel() > predictTolFrac*p.tol {
 		return readMore, false
 	}
 	a.ok = true
@@ -296,16 +295,15 @@ func (a *approachRun) misfit(f settle.ApproachFit) float64 {
 	}
 	sort.Float64s(d)
 	sd := d[len(d)/2] / (0.6745 * math.Sqrt(6))
+	if !(sd > 0) {
+		return 0
+	}
 	var ss float64
 	for i := 0; i < n; i++ {
 		r := a.mMS[i] - f.Reading(a.tS[i])
 		ss += r * r
 	}
-	sr := math.Sqrt(ss / float64(f.Dof))
-	if !(sd > 0) {
-		return 0
-	}
-	return sr / sd
+	return math.Sqrt(ss/float64(f.Dof)) / sd
 }
 
 // misfitReadings is the fewest readings misfit judges.
@@ -397,5 +395,5 @@ func (p *pointRun) learnApproach() {
 		s.pred.fitNoise[rng] = keepLast(append(s.pred.fitNoise[rng], scale*sum/float64(len(a.tS))/fs))
 	}
 	p.r.log.Debug().Float64("freq_hz", p.freqHz).Int("readings", len(a.tS)).Float64("tau_s", f.TauS).
-		Float64("u_rel", f.UMInf/(2*f.MInf)).Msg("predicted " + analysis.FormatHz(p.freqHz, 4))
+		Float64("u_rel", f.URel()).Msg("predicted " + analysis.FormatHz(p.freqHz, 4))
 }

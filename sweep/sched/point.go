@@ -553,7 +553,7 @@ func (p *pointRun) assemble(ctx context.Context) (pt point.Point, again bool, er
 	nReadings := len(win)
 	if predicted {
 		f := p.ap.fit
-		mean, stdRel = math.Sqrt(f.MInf), f.UMInf/(2*f.MInf)
+		mean, stdRel = math.Sqrt(f.MInf), f.URel()
 		w := s.inst.Converter.Window()
 		dcMean = mean / s.ranges()[s.bench.rangeIdx].FullScaleVrms * w.DCFullScaleV
 		settleS = p.ap.tS[len(p.ap.tS)-1]

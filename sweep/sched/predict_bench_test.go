@@ -5,6 +5,8 @@ import (
 	"math"
 	"testing"
 
+	"rolloff/configs"
+	"rolloff/configs/configstest"
 	"rolloff/driver/profile"
 	"rolloff/sweep/analysis"
 	"rolloff/sweep/plan"
@@ -44,8 +46,23 @@ func BenchmarkDemoSweepPredicted(b *testing.B) {
 func BenchmarkSecondPolePredicted(b *testing.B) {
 	on := true
 	demoPredicted(b, func(p *plan.Plan) { p.Settle.Predict = &on }, func(tb testing.TB, scale float64) *profile.BenchFile {
-		return editedSimBench(tb, scale, withPostFilter("0.15"))
+		return secondPoleBench(tb, scale, "0.15")
 	})
+}
+
+// secondPoleBench returns the demo simulated bench at a time scale with
+// its converter's output behind a post-filter of postS seconds
+// (sim.converter.post_filter_s; the profiles unchanged).
+func secondPoleBench(tb testing.TB, scale float64, postS string) *profile.BenchFile {
+	tb.Helper()
+	m := configstest.MapFS(tb)
+	configstest.Edit(tb, m, configs.SimBench, "[sim.converter]\n", "[sim.converter]\npost_filter_s = "+postS+"\n")
+	cfg, err := profile.LoadBenchFS(m, configs.SimBench)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	cfg.TimeScale = scale
+	return cfg
 }
 
 // demoPredicted runs the predicted benchmark for the demo plan changed

@@ -92,6 +92,10 @@ func (o ApproachOpts) harmonics() int {
 	return max(o.Harmonics, 1)
 }
 
+// URel returns the relative standard uncertainty of the settled RMS
+// √MInf: UMInf/(2·MInf), to first order.
+func (f ApproachFit) URel() float64 { return f.UMInf / (2 * f.MInf) }
+
 // At returns the fitted mean square at tS without the ripple: the
 // approach.
 func (f ApproachFit) At(tS float64) float64 { return f.MInf + f.B*math.Exp(-tS/f.TauS) }

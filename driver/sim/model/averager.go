@@ -76,9 +76,6 @@ func (s *segment) value(t float64, ripple bool) float64 {
 // state returns the averager's state y at t within the segment (the
 // output when there is no post-filter).
 func (s *segment) state(t float64) float64 {
-	if s.post == 0 {
-		return s.value(t, true)
-	}
 	y := s.ms.C0 + s.rippleOf(s.filtY, t)
 	if s.transY != 0 {
 		y += s.transY * math.Exp(-(t-s.t0)/s.tau)
@@ -150,11 +147,14 @@ func (a *Averager) newSegment(t0, y0, y20, tau float64, ms MeanSquare, ts float6
 		ao := ay
 		if post > 0 {
 			ao /= complex(1, w*post)
+			s.filt = append(s.filt, Term{K: term.K, A: ao})
 		}
-		s.filt = append(s.filt, Term{K: term.K, A: ao})
 		s.rippleAmp += cmplx.Abs(ao)
 		s.rippleHz = math.Max(s.rippleHz, float64(term.K)*ms.FreqHz)
 		lo = math.Min(lo, float64(term.K)*ms.FreqHz)
+	}
+	if post == 0 {
+		s.filt = s.filtY // the output is the state
 	}
 	if len(s.filt) > 0 {
 		s.rippleLowHz = lo
