@@ -79,9 +79,9 @@ func (s *sweeper) saturated(rd driver.ConverterReading, clipped bool) bool {
 // most vrms; else at least vrms): on the remote and operator strategies
 // the range is the one where the output will be known (holdingRange,
 // reachRange); the level strategy acts as guard does.
-func (s *sweeper) guardBound(ctx context.Context, vrms float64, upper bool, freqHz float64) (bool, error) {
+func (s *sweeper) guardBound(ctx context.Context, vrms float64, upper bool, freqHz float64, cause string) (bool, error) {
 	st := s.plan.Ranging.Strategy
-	why := boundWhy(upper, vrms, freqHz)
+	why := boundWhy(upper, vrms, freqHz, cause)
 	if s.inst.Converter == nil || !s.bench.rangeKnown || (st != plan.RangeRemote && st != plan.RangeOperator) {
 		return s.guard(ctx, vrms, vrms/s.bench.ampVrms, freqHz, why)
 	}
@@ -93,7 +93,7 @@ func (s *sweeper) guardBound(ctx context.Context, vrms float64, upper bool, freq
 		// by a hold, or taken too early, shows less).
 		vrms = math.Max(vrms, s.ranges()[s.bench.rangeIdx].FullScaleVrms*informativeFraction)
 		i = s.holdingRange(vrms)
-		why = boundWhy(upper, vrms, freqHz)
+		why = boundWhy(upper, vrms, freqHz, cause)
 	}
 	if i == s.bench.rangeIdx {
 		return false, nil
@@ -108,12 +108,17 @@ func (s *sweeper) guardBound(ctx context.Context, vrms float64, upper bool, freq
 // the converter's floor: a bound, not a value.
 func underFloor(fraction float64) bool { return !(fraction >= informativeFraction) }
 
-// boundWhy is the reason given for a change made on a bound.
-func boundWhy(upper bool, vrms, freqHz float64) string {
+// boundWhy is the reason given for a change made on a bound; cause, when
+// not empty, says what showed it (a voltmeter's overload answer).
+func boundWhy(upper bool, vrms, freqHz float64, cause string) string {
+	why := fmt.Sprintf("converter saturated: at least %.4g Vrms at %s", vrms, analysis.FormatHz(freqHz, 4))
 	if upper {
-		return fmt.Sprintf("reading under the converter's floor: at most %.4g Vrms at %s", vrms, analysis.FormatHz(freqHz, 4))
+		why = fmt.Sprintf("reading under the converter's floor: at most %.4g Vrms at %s", vrms, analysis.FormatHz(freqHz, 4))
 	}
-	return fmt.Sprintf("converter saturated: at least %.4g Vrms at %s", vrms, analysis.FormatHz(freqHz, 4))
+	if cause != "" {
+		why = cause + ": " + why
+	}
+	return why
 }
 
 // readSingle takes one reading, never averaged: the scout's, whose time

@@ -373,7 +373,11 @@ func (p *pointRun) overRange(ctx context.Context, ts, v float64) (reaction, erro
 		var changed bool
 		var err error
 		if sat {
-			changed, err = s.guardBound(ctx, vEst, false, p.freqHz)
+			cause := ""
+			if p.clipped {
+				cause = "voltmeter overload"
+			}
+			changed, err = s.guardBound(ctx, vEst, false, p.freqHz, cause)
 		} else {
 			changed, err = s.guard(ctx, vEst, vEst/s.bench.ampVrms, p.freqHz, fmt.Sprintf("over-range at %s", analysis.FormatHz(p.freqHz, 4)))
 		}
@@ -408,7 +412,7 @@ func (p *pointRun) scoutReading(ctx context.Context, ts float64) (reaction, erro
 		var changed bool
 		var err error
 		if underFloor(p.last.FractionFS) {
-			changed, err = s.guardBound(ctx, vEst, true, p.freqHz)
+			changed, err = s.guardBound(ctx, vEst, true, p.freqHz, "")
 		} else {
 			changed, err = s.guard(ctx, vEst, vEst/s.bench.ampVrms, p.freqHz, fmt.Sprintf("first reading %.4g Vrms at %s", vEst, analysis.FormatHz(p.freqHz, 4)))
 		}
@@ -675,7 +679,7 @@ func (p *pointRun) converterFlags(ctx context.Context, pt *point.Point, dcMean f
 			why := fmt.Sprintf("under-range at %s", analysis.FormatHz(p.freqHz, 4))
 			var changed bool
 			if underFloor(pt.FractionFS) {
-				changed, err = s.guardBound(ctx, mean, true, p.freqHz)
+				changed, err = s.guardBound(ctx, mean, true, p.freqHz, "")
 			} else {
 				changed, err = s.guard(ctx, mean, mean/s.bench.ampVrms, p.freqHz, why)
 			}
